@@ -1,0 +1,1 @@
+"""Shop policy and the substitution rules."""
