@@ -213,17 +213,24 @@ def format_quantity(value: float | None, unit: str, digits: int = 3) -> str:
         return f"{value:g} {symbol}"
     exp3 = int(math.floor(math.log10(abs(value)) / 3) * 3)
     exp3 = max(-12, min(12, exp3))
-    names = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G", 12: "T"}
-    mant = value / 10**exp3
-    text = _sig(mant, digits)
-    if abs(float(text)) >= 1000 and exp3 < 12:  # rounding carried into the next prefix
+    mant = _round_sig(value / 10**exp3, digits)
+    if abs(mant) >= 1000 and exp3 < 12:  # rounding carried into the next prefix
         exp3 += 3
-        text = _sig(value / 10**exp3, digits)
-    return f"{text} {names[exp3]}{symbol}"
+        mant = _round_sig(value / 10**exp3, digits)
+    names = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G", 12: "T"}
+    return f"{_sig(mant, digits)} {names[exp3]}{symbol}"
+
+
+def _round_sig(x: float, digits: int) -> float:
+    if x == 0 or not math.isfinite(x):
+        return x
+    return round(x, digits - 1 - int(math.floor(math.log10(abs(x)))))
 
 
 def _sig(x: float, digits: int) -> str:
-    s = f"{x:.{digits}g}"
-    if "e" in s:
-        s = f"{x:.{max(digits - 1, 0)}f}".rstrip("0").rstrip(".")
-    return s
+    """``x`` to ``digits`` significant digits, in plain (not exponent) notation."""
+    if x == 0 or not math.isfinite(x):
+        return f"{x:g}"
+    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(x)))))
+    text = f"{x:.{decimals}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text

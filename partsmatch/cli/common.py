@@ -15,6 +15,15 @@ from typing import Any
 import typer
 
 
+_OPEN: list["Globals"] = []
+
+
+def close_all() -> None:
+    """Close every engine the commands of this run opened."""
+    while _OPEN:
+        _OPEN.pop().close()
+
+
 @dataclass
 class Globals:
     """Global options, kept on the Typer context object."""
@@ -23,6 +32,15 @@ class Globals:
     policy: str | None = None
     debug: bool = False
     _engine: Any = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        _OPEN.append(self)
+
+    def close(self) -> None:
+        """Dispose of the engine (closes pooled connections)."""
+        if self._engine is not None:
+            self._engine.dispose()
+            self._engine = None
 
     def engine(self, *, check_schema: bool = True):
         """The database engine for ``--db`` / ``PARTSMATCH_DB`` / the default file."""

@@ -1,7 +1,7 @@
 """Entry point: global options, command groups, and the one place errors become exit codes.
 
 Exit codes (DESIGN.md section 4): 0 success, 1 the command found a problem the user asked about,
-2 bad input, 3 database problem. No traceback unless ``--debug``.
+2 bad input, 3 database problem; 70 an internal error. No traceback unless ``--debug``.
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ import sys
 import typer
 
 from partsmatch import __version__
-from partsmatch.cli.common import Globals
+from partsmatch.cli.common import Globals, close_all
 from partsmatch.errors import PartsmatchError
 
 app = typer.Typer(
@@ -24,6 +24,10 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
     rich_markup_mode=None,
 )
+
+#: Exit code of an internal error (a bug): outside the 0-3 contract so that no script reads it
+#: as a verdict (EX_SOFTWARE of BSD sysexits.h).
+INTERNAL_ERROR = 70
 
 #: Command modules under partsmatch.cli; each defines register(app).
 GROUPS = ("catalog", "decode", "find", "stock", "stress", "substitute")
@@ -91,7 +95,9 @@ def run(argv: list[str] | None = None) -> int:
             raise
         typer.echo(f"error: unexpected {type(exc).__name__}: {' '.join(str(exc).split())} "
                    "(run with --debug for details)", err=True)
-        return 1
+        return INTERNAL_ERROR
+    finally:
+        close_all()
     return 0
 
 
