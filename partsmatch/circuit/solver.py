@@ -102,6 +102,8 @@ class _Mode:
     sgn: np.ndarray  # +1 on, -1 off, 0 fixed
     P: np.ndarray
     powers: list[np.ndarray] = field(default_factory=list)
+    eig: object = None
+    settle: np.ndarray | None = None
 
     def power(self, j: int) -> np.ndarray:
         while len(self.powers) <= j:
@@ -155,6 +157,7 @@ class Netlist:
         self.steps = steps
         self.vscale = vscale
         self.vtol = 1e-9 * vscale
+        self._settle = 1e-6 * self.period
         nodes: list[str] = []
         for e in elements:
             for n in (e.a, e.b):
@@ -365,35 +368,67 @@ class Netlist:
         i = int(np.argmax(bad))
         return i, (1.0 if bad_end[i] else float(frac[i]))
 
+    def _eig(self, md: _Mode):
+        if md.eig is None:
+            w, V = np.linalg.eig(md.M)
+            ok = bool(np.all(np.isfinite(w)))
+            if ok:
+                cond = np.linalg.cond(V)
+                ok = math.isfinite(cond) and cond < 1e7
+            md.eig = (w, V, np.linalg.inv(V)) if ok else False
+        return md.eig
+
+    def _expm(self, md: _Mode, tau: float) -> np.ndarray:
+        """expm(M tau), by the cached eigendecomposition where it is well conditioned."""
+        eig = self._eig(md)
+        if eig:
+            w, V, Vi = eig
+            return ((V * np.exp(w * tau)) @ Vi).real
+        return expm(md.M * tau)
+
+    def _prop(self, md: _Mode, tau: float, z: np.ndarray) -> np.ndarray:
+        eig = self._eig(md)
+        if eig:
+            w, V, Vi = eig
+            return (V @ (np.exp(w * tau) * (Vi @ z))).real
+        return expm(md.M * tau) @ z
+
     def _locate(self, md: _Mode, z0: np.ndarray, dt: float) -> tuple[float, np.ndarray]:
         """Earliest time in (0, dt] at which some switch condition of mode md reaches its
-        boundary, starting from z0 (where all hold). Returns (tau, z(tau))."""
+        boundary, starting from z0. Returns (tau, expm(M tau)).
+
+        Safeguarded Newton on the condition of the switch that breaks first; the bracket
+        [lo, hi] always holds the earliest crossing."""
         lo, hi = 0.0, dt
-        z_hi = expm(md.M * hi) @ z0
-        s_hi = md.sgn * (md.G @ z_hi)
+        s_hi = md.sgn * (md.G @ self._prop(md, hi, z0))
         k = int(np.argmin(s_hi))
-        s_lo_k = float(md.sgn[k] * (md.G[k] @ z0))
-        z_lo = z0
-        tau = hi * s_lo_k / max(s_lo_k - float(s_hi[k]), 1e-300)
-        for _ in range(80):
-            if hi - lo <= 1e-13 * self.period:
+        s_lo = float(md.sgn[k] * (md.G[k] @ z0))
+        tau = hi * s_lo / max(s_lo - float(s_hi[k]), 1e-300)
+        tstop = 1e-12 * self.period
+        for _ in range(100):
+            if hi - lo <= tstop:
                 break
             if not (lo < tau < hi):
                 tau = 0.5 * (lo + hi)
-            z = expm(md.M * tau) @ z0
+            z = self._prop(md, tau, z0)
             s = md.sgn * (md.G @ z)
             kk = int(np.argmin(s))
             if s[kk] < -self.vtol:  # past the (earliest) boundary
-                hi, z_hi, k = tau, z, kk
+                hi, k = tau, kk
                 s_k = float(s[kk])
             else:
-                lo, z_lo = tau, z
+                lo = tau
                 s_k = float(s[k])
                 if s_k <= self.vtol * 0.5:
-                    return tau, z
+                    break
             d = float(md.sgn[k] * (md.GM[k] @ z))
-            tau = tau - s_k / d if d != 0 else 0.5 * (lo + hi)
-        return lo, z_lo
+            new = tau - s_k / d if d != 0 else 0.5 * (lo + hi)
+            if abs(new - tau) < tstop:
+                tau = lo
+                break
+            tau = new
+        tau = lo
+        return tau, self._expm(md, tau)
 
     def run(self, z0: np.ndarray, t0: float, duration: float, *, mode: tuple[bool, ...] | None
             = None, jac: bool = False, max_events: int | None = None) -> Run:
@@ -415,7 +450,8 @@ class Netlist:
             taus = np.arange(k + 1) * h
             rem = (t_end - t) - k * h
             if rem > 1e-9 * h:
-                z_last = expm(md.M * rem) @ Z[:, -1]
+                e_rem = self._expm(md, rem)
+                z_last = e_rem @ Z[:, -1]
                 Z = np.column_stack([Z, z_last])
                 taus = np.append(taus, t_end - t)
             else:
@@ -427,17 +463,18 @@ class Netlist:
                 if jac:
                     step = self._pow(md, k)
                     if rem:
-                        step = expm(md.M * rem) @ step
+                        step = e_rem @ step
                     phi = step @ phi
                 z = Z[:, -1]
                 t = t_end
                 break
             dt = (taus[i + 1] - taus[i]) * frac
-            tau, z_ev = self._locate(md, Z[:, i], dt)
+            tau, E = self._locate(md, Z[:, i], dt)
+            z_ev = E @ Z[:, i]
             seg_t = np.append(taus[:i + 1], taus[i] + tau)
             segments.append(Segment(t + seg_t, np.column_stack([Z[:, :i + 1], z_ev]), mode))
             if jac:
-                phi = expm(md.M * tau) @ self._pow(md, i) @ phi
+                phi = E @ self._pow(md, i) @ phi
             t = t + taus[i] + tau
             z = z_ev
             mode = self._flip(mode, md, z)
@@ -455,7 +492,12 @@ class Netlist:
         new = mode[:k] + (not mode[k],) + mode[k + 1:]
         for _ in range(2 * len(mode) + 2):
             md2 = self.mode(new)
-            s2 = md2.sgn * (md2.G @ z)
+            # judge the new mode a moment later: a node held only by off-state resistances
+            # (an inductor in series with off switches) settles within ~L/R_OFF, far less
+            # than this moment, and its value at the event itself is not meaningful
+            if md2.settle is None:
+                md2.settle = self._expm(md2, self._settle)
+            s2 = md2.sgn * (md2.G @ (md2.settle @ z))
             j = int(np.argmin(s2))
             if s2[j] >= -self.vtol:
                 return new
@@ -469,7 +511,7 @@ class Netlist:
         return np.array([math.cos(w), math.sin(w), 1.0])
 
     def periodic_steady_state(self, x0: np.ndarray | None = None, *, tol: float = 1e-7,
-                              max_iter: int = 60) -> SteadyState:
+                              max_iter: int = 80) -> SteadyState:
         """The periodic orbit (state at t = 0 of the source period) and its verified period.
 
         Raises:
@@ -478,29 +520,58 @@ class Netlist:
         x = np.zeros(self.nx) if x0 is None else np.asarray(x0, float)
         u0 = self.u_at(0.0)
         ident = np.eye(self.nx)
-        best = math.inf
-        residual = math.inf
+        scale = self._scale()
+
+        def evaluate(xs: np.ndarray) -> tuple[Run, np.ndarray, float]:
+            r = self.run(np.concatenate([xs, u0]), 0.0, self.period, jac=True)
+            f = r.z_end[:self.nx] - xs
+            return r, f, float(np.linalg.norm(f / scale))
+
+        run, f, norm = evaluate(x)
+        sims = 1
         for it in range(1, max_iter + 1):
-            run = self.run(np.concatenate([x, u0]), 0.0, self.period, jac=True)
-            xT = run.z_end[:self.nx]
-            residual = self._residual(run, x, xT)
+            residual = self._residual(run, x, x + f)
             if residual <= tol:
-                return SteadyState(x, run, it, residual)
+                return SteadyState(x, run, sims, residual)
+            # Newton step on the period map with the mode sequence frozen (exact for it)
             A = run.phi[:self.nx, :self.nx]
-            b = xT - A @ x
             try:
-                x_new = np.linalg.solve(ident - A, b)
+                dx = np.linalg.solve(ident - A, f)
             except np.linalg.LinAlgError:
-                x_new = xT
-            if not np.all(np.isfinite(x_new)):
-                x_new = xT
-            if residual > 4 * best and it > 6:
-                # the piecewise-affine Newton step is cycling: take plain periods for a while
-                x_new = xT
-            best = min(best, residual)
-            x = x_new
-        raise SimulationError(f"no periodic steady state verified after {max_iter} periods "
-                              f"(residual {residual:.2g})")
+                dx = f
+            if not np.all(np.isfinite(dx)):
+                dx = f
+            # backtracking: the affine solve of one mode sequence may land where another
+            # sequence holds (e.g. a bleeder-only decay predicts a fully discharged capacitor)
+            lam = 1.0
+            while True:
+                trial = x + lam * dx
+                run_t, f_t, norm_t = evaluate(trial)
+                sims += 1
+                if norm_t < (1 - lam / 4) * norm or lam < 1 / 64:
+                    break
+                lam /= 2
+            if lam < 1 / 64 and norm_t >= norm:
+                # no descent along the Newton direction: take one plain simulated period
+                trial, run_t, f_t, norm_t = x + f, *evaluate(x + f)
+                sims += 1
+            x, run, f, norm = trial, run_t, f_t, norm_t
+            if sims > max_iter:
+                break
+        residual = self._residual(run, x, x + f)
+        if residual <= tol:
+            return SteadyState(x, run, sims, residual)
+        raise SimulationError(f"no periodic steady state verified after {sims} simulated "
+                              f"periods (residual {residual:.2g})")
+
+    def _scale(self) -> np.ndarray:
+        """Typical size of each state: the source peak for voltages, peak / impedance for
+        inductor currents."""
+        ncap = len(self.caps)
+        scale = np.full(self.nx, self.vscale)
+        if self.nx > ncap:
+            scale[ncap:] = self.vscale / (self.omega * max(i.value for i in self.inds))
+        return scale
 
     def _residual(self, run: Run, x0: np.ndarray, xT: np.ndarray) -> float:
         if self.nx == 0:
