@@ -1,0 +1,59 @@
+"""Start-up stays light: importing partsmatch or asking for --help pulls no heavy module."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import pytest
+
+HEAVY = ("numpy", "scipy", "matplotlib", "pint")
+
+
+@pytest.mark.parametrize("code", [
+    "import partsmatch",
+    "from partsmatch.cli.main import run; run(['--help'])",
+    "from partsmatch.cli.main import run; run(['parts', '--help'])",
+])
+def test_no_heavy_imports(code):
+    probe = (f"{code}\nimport sys\n"
+             f"print('HEAVY:' + ','.join(m for m in {HEAVY!r} if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)
+    assert out.stdout.splitlines()[-1] == "HEAVY:", out.stdout
+
+
+def _commands(group, prefix=()):
+
+    for name, cmd in group.commands.items():
+        yield (*prefix, name), cmd
+        if hasattr(cmd, "commands"):
+            yield from _commands(cmd, (*prefix, name))
+
+
+def test_every_command_has_help_text():
+    import typer.main
+
+    from partsmatch.cli.main import app
+
+    root = typer.main.get_command(app)
+    missing = [" ".join(path) for path, cmd in _commands(root) if not (cmd.help or "").strip()]
+    assert missing == []
+
+
+def test_every_table_command_offers_json():
+    """A command that prints a table also offers --json (brief: every table command)."""
+    import typer.main
+
+    from partsmatch.cli.main import app
+
+    root = typer.main.get_command(app)
+    exempt = {("parts", "export"), ("parts", "import"), ("db", "upgrade")}
+    lacking = []
+    for path, cmd in _commands(root):
+        if hasattr(cmd, "commands") or path in exempt:
+            continue
+        if path[-1] in ("add", "take", "move", "upgrade"):
+            continue
+        if not any("--json" in p.opts for p in cmd.params):
+            lacking.append(" ".join(path))
+    assert lacking == []
