@@ -353,6 +353,8 @@ def _read_rkm(s: str) -> list[Reading]:
         return []
     if tol == "F" and not after and letter in "pnuµPNU":
         return []  # 1uF, 100nF: a plain quantity with the farad symbol, read elsewhere
+    if letter in "PN" and not after:
+        return []  # 105P, 105N: IEC 60062 tolerance letters after a code, not pico or nano
     number = f"{before or '0'}.{after or '0'}"
     if tol and tol not in TOLERANCE_LETTERS:
         return []
