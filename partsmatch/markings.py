@@ -188,7 +188,7 @@ _QUANTITY = re.compile(
 )
 _FUSE = re.compile(
     rf"(FF|TT|F|M|T)\s*({_NUM})\s*(mA|A)\s*([LEH])?"
-    rf"(?:\s*({_NUM})\s*(k?)V\s*(AC|DC|~|-)?)?",
+    rf"(?:\s*/?\s*({_NUM})\s*(k?)V\s*(AC|DC|~|-)?)?",
     re.IGNORECASE,
 )
 _PERCENT = re.compile(
@@ -212,6 +212,7 @@ _QUANTITY_UNITS = {  # lower-case symbol -> (units key, reading kind, canonical 
 
 
 def _full(pattern: re.Pattern[str], text: str) -> re.Match[str] | None:
+    """The whole text matched by the pattern, or None."""
     return pattern.fullmatch(text)
 
 
@@ -338,9 +339,7 @@ def _read_code(s: str) -> list[Reading]:
     for values, tol_note in _tolerance_letter(letter, farads):
         out.append(Reading("capacitance", {"capacitance": farads, **values},
                            f"{base}; {tol_note}", s))
-    if letter == "F":
-        pass  # F after a code is the tolerance letter; the farad symbol is not written so
-    return out
+    return out  # F after a code is the tolerance letter: the farad symbol is not written so
 
 
 def _read_rkm(s: str) -> list[Reading]:

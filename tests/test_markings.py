@@ -289,6 +289,7 @@ def test_fuse_characteristic_letters(letter: str, name: str) -> None:
         ("FF1A E 125V", "FF", 1.0, "E", 150.0, 125.0),  # E = 150 A (IEC 60127-2, secondary source)
         ("T 3,15 A L 250 V", "T", 3.15, "L", 35.0, 250.0),  # decimal comma and spaces
         ("TT800mAL250V", "TT", 0.8, "L", 35.0, 250.0),
+        ("T1.6AL/250V", "T", 1.6, "L", 35.0, 250.0),   # a slash before the voltage
     ],
 )
 def test_fuse_markings(marking: str, char: str, amps: float, letter: str, breaking: float,
@@ -330,7 +331,7 @@ def test_unreadable_text_is_one_line_input_error(text: str) -> None:
     message = str(info.value)
     assert len(message.splitlines()) == 1
     if text.strip():
-        assert repr(text.strip()[:20])[1:-1][:10] in message
+        assert text.strip()[:10] in message  # the message names the text
 
 
 # ----------------------------------------------------------------- free-text queries
@@ -394,7 +395,7 @@ def test_decode_text_falls_back_to_words() -> None:
 
 _MARKING_ALPHABET = st.sampled_from(list("0123456789.,%±+-/~= kKmMuµnpPRrFVACDTLEHJGZQSNW"
                                          "Ωohmsz\n\t\u2028\x85"))
-_TEXTS = st.one_of(st.text(max_size=80), st.text(_MARKING_ALPHABET, max_size=16))
+_TEXTS = st.one_of(st.text(), st.text(_MARKING_ALPHABET, max_size=16))
 _PROPS = settings(max_examples=300, derandomize=True, deadline=None,
                   suppress_health_check=[HealthCheck.too_slow])
 
