@@ -413,3 +413,41 @@ def check_part(session: Session | None, spec, original: PartRecord, candidate: P
 
 __all__ = ["Substitution", "replace_part", "check_part", "original_from_text", "choose_slot",
            "prefilter", "verdict_of"]
+
+
+def resolve_original(session: Session | None, spec, part: str | None, original_spec: str | None,
+                     slot: str | None) -> tuple[PartRecord, str]:
+    """The original part and its slot, from a catalog name, entered ratings, or the circuit's
+    ``part = ...`` of ``slot``."""
+    from partsmatch.catalog.queries import find_part
+
+    if part and original_spec:
+        raise InputError("give either PART or --original-spec, not both")
+    if original_spec:
+        role = spec.parts[slot].role if slot and slot in spec.parts else _role_of_text(original_spec)
+        original = original_from_text(original_spec, role)
+        return original, choose_slot(spec, original, slot)
+    if not part:
+        if slot and slot in spec.parts and spec.parts[slot].part:
+            part = spec.parts[slot].part
+        else:
+            raise InputError("name the original: PART, --original-spec, or --slot of a circuit "
+                             "slot that names its part")
+    if session is None:
+        raise InputError("a catalog is needed to look up a part")
+    original = find_part(session, part)
+    return original, choose_slot(spec, original, slot)
+
+
+def _role_of_text(text: str) -> str:
+    from partsmatch.markings import decode_query
+
+    r = decode_query(text).ratings
+    hint = r.get("kind_hint")
+    if hint in ("capacitor", "diode", "fuse"):
+        return str(hint)
+    if "capacitance" in r:
+        return "capacitor"
+    if "characteristic" in r or "rated_current" in r:
+        return "fuse"
+    raise InputError(f"cannot tell the kind of part from {text!r}: give --slot", value=text)
