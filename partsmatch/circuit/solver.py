@@ -40,6 +40,8 @@ from partsmatch.errors import SimulationError
 R_OFF = 1e10  #: ohm, a switch (diode, threshold load) that is off
 R_SHUNT = 1e12  #: ohm, from every node to ground
 STEPS_PER_PERIOD = 512
+LAMBDA_MIN = 1 / 16  #: shortest backtracked Newton step before a plain period is taken
+STEP_LIMIT = 1.0  #: largest Newton step of a state, in units of its scale (source peak)
 
 _PADE13 = (64764752532480000.0, 32382376266240000.0, 7771770303897600.0, 1187353796428800.0,
            129060195264000.0, 10559470521600.0, 670442572800.0, 33522128640.0, 1323241920.0,
@@ -297,6 +299,7 @@ class Netlist:
             if len(self._modes) > 4096:
                 self._modes.clear()
             md = self._modes[mode] = self._build(mode)
+            md.settle = self._expm(md, self._settle)
         return md
 
     def consistent_mode(self, z: np.ndarray) -> tuple[bool, ...]:
@@ -341,55 +344,60 @@ class Netlist:
             return -1, 1.0
         s = md.sgn[:, None] * (md.G @ Z)
         bad_end = (s[:, 1:] < -self.vtol).any(axis=0)
-        ds = md.sgn[:, None] * (md.GM @ Z)
-        s0, s1, d0, d1 = s[:, :-1], s[:, 1:], ds[:, :-1] * dts, ds[:, 1:] * dts
-        dip = (d0 < 0) & (d1 > 0)
-        hidden = np.zeros_like(bad_end)
-        frac = np.ones(len(bad_end))
-        if dip.any():
-            best = np.full(s0.shape, np.inf)
-            where = np.zeros(s0.shape)
-            for th in (0.2, 0.4, 0.5, 0.6, 0.8):
-                h00 = 2 * th ** 3 - 3 * th ** 2 + 1
-                h10 = th ** 3 - 2 * th ** 2 + th
-                h01 = -2 * th ** 3 + 3 * th ** 2
-                h11 = th ** 3 - th ** 2
-                val = h00 * s0 + h10 * d0 + h01 * s1 + h11 * d1
+        n_int = int(np.argmax(bad_end)) + 1 if bad_end.any() else len(bad_end)
+        # a condition may dip across its boundary and back between two samples: a cubic
+        # Hermite interpolant (values and slopes at both ends) finds such dips; only intervals
+        # whose bound min(s0, s1) - (|d0| + |d1|) * 4/27 is below the boundary are examined
+        ds = md.sgn[:, None] * (md.GM @ Z[:, :n_int + 1])
+        s0, s1 = s[:, :n_int], s[:, 1:n_int + 1]
+        d0, d1 = ds[:, :-1] * dts[:n_int], ds[:, 1:] * dts[:n_int]
+        cand = ((d0 < 0) & (d1 > 0)
+                & (np.minimum(s0, s1) - 0.15 * (np.abs(d0) + np.abs(d1)) < -self.vtol))
+        if cand.any():
+            rows, cols = np.nonzero(cand)
+            a0, a1, b0, b1 = s0[rows, cols], s1[rows, cols], d0[rows, cols], d1[rows, cols]
+            best = np.full(len(rows), np.inf)
+            where = np.ones(len(rows))
+            for th in (0.2, 0.35, 0.5, 0.65, 0.8):
+                val = ((2 * th ** 3 - 3 * th ** 2 + 1) * a0 + (th ** 3 - 2 * th ** 2 + th) * b0
+                       + (-2 * th ** 3 + 3 * th ** 2) * a1 + (th ** 3 - th ** 2) * b1)
                 better = val < best
                 best = np.where(better, val, best)
                 where = np.where(better, th, where)
-            hid = dip & (best < -self.vtol)
-            hidden = hid.any(axis=0)
-            if hidden.any():
-                frac = np.where(hid, where, 1.0).min(axis=0)
-        bad = bad_end | hidden
-        if not bad.any():
-            return -1, 1.0
-        i = int(np.argmax(bad))
-        return i, (1.0 if bad_end[i] else float(frac[i]))
+            hit = best < -self.vtol
+            if hit.any():
+                c = cols[hit]
+                i = int(c.min())
+                return i, float(where[hit][c == i].min())
+        if n_int < len(bad_end):
+            return n_int - 1, 1.0
+        return -1, 1.0
 
     def _eig(self, md: _Mode):
+        """Cached eigendecomposition of M and its condition number (False if unusable)."""
         if md.eig is None:
             w, V = np.linalg.eig(md.M)
             ok = bool(np.all(np.isfinite(w)))
-            if ok:
-                cond = np.linalg.cond(V)
-                ok = math.isfinite(cond) and cond < 1e7
-            md.eig = (w, V, np.linalg.inv(V)) if ok else False
+            cond = np.linalg.cond(V) if ok else math.inf
+            ok = ok and math.isfinite(cond) and cond < 1e10
+            md.eig = (w, V, np.linalg.inv(V), cond) if ok else False
         return md.eig
 
     def _expm(self, md: _Mode, tau: float) -> np.ndarray:
-        """expm(M tau), by the cached eigendecomposition where it is well conditioned."""
+        """expm(M tau): by the eigendecomposition where it is well conditioned (cond < 1e5,
+        error below 1e-10), else by Pade."""
         eig = self._eig(md)
-        if eig:
-            w, V, Vi = eig
+        if eig and eig[3] < 1e5:
+            w, V, Vi, _ = eig
             return ((V * np.exp(w * tau)) @ Vi).real
         return expm(md.M * tau)
 
     def _prop(self, md: _Mode, tau: float, z: np.ndarray) -> np.ndarray:
+        """z(tau) for the event search (eigendecomposition up to cond 1e10: the search only
+        needs the switching instant; the state there is then taken from :meth:`_expm`)."""
         eig = self._eig(md)
         if eig:
-            w, V, Vi = eig
+            w, V, Vi, _ = eig
             return (V @ (np.exp(w * tau) * (Vi @ z))).real
         return expm(md.M * tau) @ z
 
@@ -404,7 +412,7 @@ class Netlist:
         k = int(np.argmin(s_hi))
         s_lo = float(md.sgn[k] * (md.G[k] @ z0))
         tau = hi * s_lo / max(s_lo - float(s_hi[k]), 1e-300)
-        tstop = 1e-12 * self.period
+        tstop = 1e-10 * self.period
         for _ in range(100):
             if hi - lo <= tstop:
                 break
@@ -475,9 +483,15 @@ class Netlist:
             segments.append(Segment(t + seg_t, np.column_stack([Z[:, :i + 1], z_ev]), mode))
             if jac:
                 phi = E @ self._pow(md, i) @ phi
-            t = t + taus[i] + tau
-            z = z_ev
-            mode = self._flip(mode, md, z)
+            mode = self._flip(mode, md, z_ev)
+            # start the new mode a moment (1e-6 period) later: the state then lies on its slow
+            # manifold (a node held only by off-state resistances has settled), and no
+            # non-physical spike of the event instant reaches the recorded waveforms
+            settle = self.mode(mode).settle
+            z = settle @ z_ev
+            t = t + taus[i] + tau + self._settle
+            if jac:
+                phi = settle @ phi
             events += 1
             if events > limit:
                 raise SimulationError("the switching does not settle (more than "
@@ -495,8 +509,6 @@ class Netlist:
             # judge the new mode a moment later: a node held only by off-state resistances
             # (an inductor in series with off switches) settles within ~L/R_OFF, far less
             # than this moment, and its value at the event itself is not meaningful
-            if md2.settle is None:
-                md2.settle = self._expm(md2, self._settle)
             s2 = md2.sgn * (md2.G @ (md2.settle @ z))
             j = int(np.argmin(s2))
             if s2[j] >= -self.vtol:
@@ -511,8 +523,16 @@ class Netlist:
         return np.array([math.cos(w), math.sin(w), 1.0])
 
     def periodic_steady_state(self, x0: np.ndarray | None = None, *, tol: float = 1e-7,
-                              max_iter: int = 80) -> SteadyState:
+                              tol_grazing: float = 1e-5, max_iter: int = 80) -> SteadyState:
         """The periodic orbit (state at t = 0 of the source period) and its verified period.
+
+        Verified means: a simulated period from the orbit's state returns to it within ``tol``
+        (largest change of any state, relative to its largest value over the period). A circuit
+        without load or bleeder has a *grazing* orbit: its diodes barely conduct, and the
+        capacitors leak through the off-state resistances between pulses. The search then ends
+        on the fixed point of the last conducting mode sequence, where conduction vanishes; it
+        is accepted when the residual is within ``tol_grazing`` and it was reached by a full,
+        unclipped Newton step (not by drifting through states that merely leak slowly).
 
         Raises:
             SimulationError: no orbit verified within ``max_iter`` simulated periods.
@@ -522,16 +542,22 @@ class Netlist:
         ident = np.eye(self.nx)
         scale = self._scale()
 
-        def evaluate(xs: np.ndarray) -> tuple[Run, np.ndarray, float]:
-            r = self.run(np.concatenate([xs, u0]), 0.0, self.period, jac=True)
+        def evaluate(xs: np.ndarray) -> tuple[Run | None, np.ndarray, float]:
+            try:
+                r = self.run(np.concatenate([xs, u0]), 0.0, self.period, jac=True)
+            except SimulationError:
+                if xs is x:
+                    raise
+                return None, xs, math.inf  # a wild trial state: backtrack from it
             f = r.z_end[:self.nx] - xs
             return r, f, float(np.linalg.norm(f / scale))
 
         run, f, norm = evaluate(x)
         sims = 1
+        newton_landed = False  # x is the fixed point of the previous run's mode sequence
         for it in range(1, max_iter + 1):
             residual = self._residual(run, x, x + f)
-            if residual <= tol:
+            if residual <= tol or (newton_landed and residual <= tol_grazing):
                 return SteadyState(x, run, sims, residual)
             # Newton step on the period map with the mode sequence frozen (exact for it)
             A = run.phi[:self.nx, :self.nx]
@@ -541,6 +567,12 @@ class Netlist:
                 dx = f
             if not np.all(np.isfinite(dx)):
                 dx = f
+            # trust region: a mode sequence in which some capacitor never charges leaves
+            # (I - A) nearly singular; never move a state by more than the source peak
+            big = float(np.max(np.abs(dx) / scale))
+            clipped = big > STEP_LIMIT
+            if clipped:
+                dx *= STEP_LIMIT / big
             # backtracking: the affine solve of one mode sequence may land where another
             # sequence holds (e.g. a bleeder-only decay predicts a fully discharged capacitor)
             lam = 1.0
@@ -548,18 +580,22 @@ class Netlist:
                 trial = x + lam * dx
                 run_t, f_t, norm_t = evaluate(trial)
                 sims += 1
-                if norm_t < (1 - lam / 4) * norm or lam < 1 / 64:
+                if norm_t < (1 - lam / 4) * norm or lam <= LAMBDA_MIN:
                     break
-                lam /= 2
-            if lam < 1 / 64 and norm_t >= norm:
+                lam /= 4
+            if run_t is None or norm_t >= norm:
                 # no descent along the Newton direction: take one plain simulated period
                 trial, run_t, f_t, norm_t = x + f, *evaluate(x + f)
                 sims += 1
+                if run_t is None:
+                    raise SimulationError("the steady-state search left the circuit's range")
+                lam = 0.0
+            newton_landed = lam == 1.0 and not clipped
             x, run, f, norm = trial, run_t, f_t, norm_t
             if sims > max_iter:
                 break
         residual = self._residual(run, x, x + f)
-        if residual <= tol:
+        if residual <= tol or (newton_landed and residual <= tol_grazing):
             return SteadyState(x, run, sims, residual)
         raise SimulationError(f"no periodic steady state verified after {sims} simulated "
                               f"periods (residual {residual:.2g})")

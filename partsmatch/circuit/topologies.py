@@ -32,9 +32,11 @@ Bleeders are resistors ``RB_<slot>`` across their capacitor.
 
 Loads: ``resistor`` a resistor; ``threshold`` a switch that conducts when its voltage exceeds
 ``threshold``, i = max(0, (v - threshold) / dynamic_resistance), and is 1e10 ohm below it;
-``current`` a constant-current sink that draws ``current`` while its voltage is positive and is
-1e10 ohm otherwise (so at switch-on, from discharged capacitors, it draws nothing until the output
-has risen above zero: an electronic load cannot pull its current out of a discharged supply);
+``current`` a constant-current sink that draws ``current`` above a compliance voltage of
+:data:`COMPLIANCE` x the source peak and is the resistor compliance / current below it (so at
+switch-on, from discharged capacitors, it draws in proportion to the output until that is up: an
+electronic load cannot pull its current out of a discharged supply; and its current stays
+continuous, which a switch-on at exactly 0 V would not be);
 ``none`` nothing (the bleeders and the diodes' off-state resistance remain).
 """
 
@@ -44,6 +46,25 @@ from dataclasses import dataclass
 
 from partsmatch.circuit.solver import R_OFF, Element, Netlist
 from partsmatch.circuit.spec import CircuitSpec
+
+
+def ideal_dc(spec: CircuitSpec, voltage_factor: float = 1.0) -> dict[str, float]:
+    """Each capacitor's no-load DC voltage with ideal diodes and a stiff source (V), in the sign
+    convention above: a start for the steady-state search, not a result."""
+    vpk = spec.source.v_peak * voltage_factor
+    out: dict[str, float] = {}
+    for slot, p in spec.parts.items():
+        if p.role != "capacitor":
+            continue
+        if spec.topology == "multiplier":
+            out[slot] = vpk if slot == "C1" else 2 * vpk
+        else:
+            out[slot] = vpk
+    return out
+
+
+#: Compliance voltage of a constant-current load, as a fraction of the source peak.
+COMPLIANCE = 0.01
 
 
 @dataclass(frozen=True)
@@ -151,7 +172,9 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
             els.append(Element("S", "LOAD", out[0], out[1], von=ld.threshold,
                                ron=ld.dynamic_resistance))
         elif ld.type == "current":
-            els.append(Element("S", "LOAD", out[0], out[1], von=0.0, ion=ld.current))
+            vc = COMPLIANCE * vpk
+            els.append(Element("S", "LOAD", out[0], out[1], von=vc, ion=ld.current,
+                               roff=vc / ld.current))
     omega = 2 * 3.141592653589793 * src.frequency
     kwargs = {} if steps is None else {"steps": steps}
     net = Netlist(els, omega, vscale=vpk, **kwargs)
