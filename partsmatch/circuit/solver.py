@@ -39,7 +39,9 @@ from partsmatch.errors import SimulationError
 
 R_OFF = 1e10  #: ohm, a switch (diode, threshold load) that is off
 R_SHUNT = 1e12  #: ohm, from every node to ground
+R_FUSE_OPEN = 1e14  #: ohm, an open fuse: far above R_OFF, so that it takes the whole voltage
 STEPS_PER_PERIOD = 512
+CHUNK = 128  #: first chunk of steps taken at once after an event (doubles while none comes)
 LAMBDA_MIN = 1 / 16  #: shortest backtracked Newton step before a plain period is taken
 STEP_LIMIT = 1.0  #: largest Newton step of a state, in units of its scale (source peak)
 
@@ -451,18 +453,22 @@ class Netlist:
         periods = max(1.0, duration / self.period)
         limit = max_events or int(200 * (len(self.switches) + 1) * periods)
         h = self.h
+        chunk = CHUNK
         while t < t_end - 1e-12 * self.period:
             md = self.mode(mode)
-            k = int(math.floor((t_end - t) / h * (1 + 1e-12)))
+            k_left = int(math.floor((t_end - t) / h * (1 + 1e-12)))
+            # step in chunks that grow while no event comes: an event ends the chunk, and
+            # most of a period between events is never stepped twice
+            k = min(k_left, chunk)
+            last = k == k_left
             Z = self._batch(md, z, k)
             taus = np.arange(k + 1) * h
-            rem = (t_end - t) - k * h
-            if rem > 1e-9 * h:
+            rem = (t_end - t) - k * h if last else 0.0
+            if last and rem > 1e-9 * h:
                 e_rem = self._expm(md, rem)
-                z_last = e_rem @ Z[:, -1]
-                Z = np.column_stack([Z, z_last])
+                Z = np.column_stack([Z, e_rem @ Z[:, -1]])
                 taus = np.append(taus, t_end - t)
-            else:
+            elif last:
                 rem = 0.0
                 taus[-1] = t_end - t
             i, frac = self._first_violation(md, Z, np.diff(taus))
@@ -474,8 +480,13 @@ class Netlist:
                         step = e_rem @ step
                     phi = step @ phi
                 z = Z[:, -1]
-                t = t_end
-                break
+                if last:
+                    t = t_end
+                    break
+                t = t + k * h
+                chunk *= 2
+                continue
+            chunk = CHUNK
             dt = (taus[i + 1] - taus[i]) * frac
             tau, E = self._locate(md, Z[:, i], dt)
             z_ev = E @ Z[:, i]

@@ -60,7 +60,7 @@ SOURCE_KEYS = ("i_rms",)
 
 SWITCH_ON_PERIODS = 5
 FUSE_OPEN_PERIODS = 3
-PHASES = 24
+PHASES = 12
 
 
 # --- small measures over non-uniform samples ------------------------------------------------

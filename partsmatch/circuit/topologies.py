@@ -3,30 +3,34 @@
 Common to all: the source is an ideal sine ``VS`` of peak sqrt(2) x ``voltage`` (RMS, open
 circuit) from its return node to ``s0``, then the winding resistance ``RS`` (s0 -> s1), the
 leakage inductance ``LS`` (s1 -> s2) and the fuse slot ``F1`` (s2 -> x, a short while intact,
-its cold resistance if one is given; :data:`~partsmatch.circuit.solver.R_OFF` once open). An
+its cold resistance if one is given; :data:`~partsmatch.circuit.solver.R_FUSE_OPEN` = 1e14 ohm
+once open, so that the open fuse takes the whole voltage rather than sharing it with the 1e10 ohm
+of the off diodes: the worst case, where in reality leakage and stray capacitance divide it). An
 absent R, L or fuse merges its two nodes. ``x`` feeds the rectifier. Node ``0`` is ground.
 
 Sign conventions (the stress JSON keeps them):
 
-* a capacitor's voltage is V(+) - V(-) with its terminals named below so that its DC voltage is
-  positive in the positive-output circuits described here;
+* a capacitor's voltage is V(from) - V(to) of the wiring below, read literally ("C1 from the
+  source node to node N": V(x) - V(n)); so the clamp doubler's C1 and every multiplier capacitor
+  carry a negative DC voltage, the others a positive one (magnitudes are what ratings meet; the
+  sign shows reversal);
 * a diode's current flows from anode to cathode; ``v_reverse_peak`` is the largest
   V(cathode) - V(anode);
 * the load's voltage is V(out+) - V(out-), its current flows from out+ to out-.
 
-Wiring (anode -> cathode for diodes; + / - for capacitors):
+Wiring (anode -> cathode for diodes; from -> to for capacitors):
 
-* ``half-wave-rectifier``: return 0. D1 x -> out; C1 out(+) / 0(-); load out -> 0.
-* ``half-wave-doubler`` (clamp, oven style): return 0. C1 n(+) / x(-); D1 0 -> n; load n -> 0
+* ``half-wave-rectifier``: return 0. D1 x -> out; C1 out -> 0; load out -> 0.
+* ``half-wave-doubler`` (clamp, oven style): return 0. C1 x -> n; D1 0 -> n; load n -> 0
   (across D1), so n swings about 0..+2 Vpk.
 * ``full-wave-doubler`` (Delon): return 0 = the capacitors' midpoint m. D1 x -> p; D2 q -> x;
-  C1 p(+) / 0(-); C2 0(+) / q(-); load p -> q.
+  C1 p -> 0; C2 0 -> q; load p -> q.
 * ``bridge-rectifier``: return node b (the source floats through the bridge; it reaches ground
   through the off-state resistance of the diodes and the node shunts only); ground 0 = the
-  negative output. D1 x -> p; D2 b -> p; D3 0 -> x; D4 0 -> b; C1 p(+) / 0(-); load p -> 0.
+  negative output. D1 x -> p; D2 b -> p; D3 0 -> x; D4 0 -> b; C1 p -> 0; load p -> 0.
 * ``multiplier`` (Cockcroft-Walton, n stages): return 0; a0 = x, b0 = 0. For k = 1..n:
-  C(2k-1) a_k(+) / a_(k-1)(-) (oscillating column); C(2k) b_k(+) / b_(k-1)(-) (smoothing
-  column); D(2k-1) b_(k-1) -> a_k; D(2k) a_k -> b_k. Load b_n -> 0. No-load output 2 n Vpk.
+  C(2k-1) a_(k-1) -> a_k (oscillating column); C(2k) b_(k-1) -> b_k (smoothing column);
+  D(2k-1) b_(k-1) -> a_k; D(2k) a_k -> b_k. Load b_n -> 0. No-load output 2 n Vpk.
 
 Bleeders are resistors ``RB_<slot>`` across their capacitor.
 
@@ -44,7 +48,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from partsmatch.circuit.solver import R_OFF, Element, Netlist
+from partsmatch.circuit.solver import R_FUSE_OPEN, Element, Netlist
 from partsmatch.circuit.spec import CircuitSpec
 
 
@@ -57,7 +61,9 @@ def ideal_dc(spec: CircuitSpec, voltage_factor: float = 1.0) -> dict[str, float]
         if p.role != "capacitor":
             continue
         if spec.topology == "multiplier":
-            out[slot] = vpk if slot == "C1" else 2 * vpk
+            out[slot] = -vpk if slot == "C1" else -2 * vpk
+        elif spec.topology == "half-wave-doubler":
+            out[slot] = -vpk
         else:
             out[slot] = vpk
     return out
@@ -84,7 +90,7 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
 
     Args:
         load: False leaves the load out (the no-load and switch-on states).
-        fuse_open: the fuse slot is an open circuit (R_OFF).
+        fuse_open: the fuse slot is an open circuit (R_FUSE_OPEN).
         voltage_factor: multiplies the source voltage (high line).
     """
     src = spec.source
@@ -103,7 +109,7 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
     fuse = spec.parts.get("F1")
     if fuse is not None:
         if fuse_open:
-            els.append(Element("R", "F1", node, "x", value=R_OFF))
+            els.append(Element("R", "F1", node, "x", value=R_FUSE_OPEN))
         elif fuse.resistance:
             els.append(Element("R", "F1", node, "x", value=fuse.resistance))
         else:
@@ -113,11 +119,11 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
     else:
         x = node
 
-    def cap(slot: str, plus: str, minus: str) -> None:
+    def cap(slot: str, a: str, b: str) -> None:
         p = spec.parts[slot]
-        els.append(Element("C", slot, plus, minus, value=p.capacitance))
+        els.append(Element("C", slot, a, b, value=p.capacitance))
         if p.bleeder:
-            els.append(Element("R", f"RB_{slot}", plus, minus, value=p.bleeder))
+            els.append(Element("R", f"RB_{slot}", a, b, value=p.bleeder))
         slots[slot] = slot
 
     def diode(slot: str, anode: str, cathode: str) -> None:
@@ -131,7 +137,7 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
         cap("C1", "out", "0")
         out = ("out", "0")
     elif topo == "half-wave-doubler":
-        cap("C1", "n", x)
+        cap("C1", x, "n")
         diode("D1", "0", "n")
         out = ("n", "0")
     elif topo == "full-wave-doubler":
@@ -152,8 +158,8 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
         for k in range(1, n + 1):
             a_prev = x if k == 1 else f"a{k - 1}"
             b_prev = "0" if k == 1 else f"b{k - 1}"
-            cap(f"C{2 * k - 1}", f"a{k}", a_prev)
-            cap(f"C{2 * k}", f"b{k}", b_prev)
+            cap(f"C{2 * k - 1}", a_prev, f"a{k}")
+            cap(f"C{2 * k}", b_prev, f"b{k}")
             diode(f"D{2 * k - 1}", b_prev, f"a{k}")
             diode(f"D{2 * k}", f"a{k}", f"b{k}")
         out = (f"b{n}", "0")
