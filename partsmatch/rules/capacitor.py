@@ -23,6 +23,18 @@ def _peak_rating(p: PartRecord) -> float | None:
     return max(peaks) if peaks else None
 
 
+def _evidence_peak(orig: PartRecord, cand: PartRecord) -> float | None:
+    """The original's peak rating as evidence for ``cand``: only over the kinds of rating (AC,
+    DC) both parts state. A DC rating is no evidence for an AC one nor the reverse (DESIGN.md:
+    VAC and VDC ratings are not interchangeable by number)."""
+    peaks = []
+    if orig.voltage_ac and cand.voltage_ac:
+        peaks.append(orig.voltage_ac * SQRT2)
+    if orig.voltage_dc and cand.voltage_dc:
+        peaks.append(orig.voltage_dc)
+    return max(peaks) if peaks else None
+
+
 def _abs_peak(values: dict[str, float]) -> float | None:
     cands = [abs(values[k]) for k in ("v_peak", "v_min") if values.get(k) is not None]
     return max(cands) if cands else None
@@ -83,7 +95,7 @@ def other_slots(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Poli
 def voltage_peak(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Policy) -> Finding:
     """Applied peak against the rating's own peak (sqrt(2) x VAC, or VDC)."""
     return rated("cap_voltage_peak", stress=_abs_peak(st.continuous), rating=_peak_rating(cand),
-                 original=_peak_rating(orig), margin_fraction=policy["cap_voltage_margin"],
+                 original=_evidence_peak(orig, cand), margin_fraction=policy["cap_voltage_margin"],
                  unit="V", what="peak voltage vs the rating's peak",
                  basis=policy.entry("cap_voltage_margin").basis)
 
@@ -93,7 +105,7 @@ def voltage_transient(orig: PartRecord, cand: PartRecord, st: SlotStress,
     """Switch-on peak against the transient allowance times the rating's peak."""
     allowance = policy["transient_allowance"]
     rating = _peak_rating(cand)
-    orig_rating = _peak_rating(orig)
+    orig_rating = _evidence_peak(orig, cand)
     return rated("cap_voltage_switch_on", stress=_abs_peak(st.transient),
                  rating=rating * allowance if rating else None,
                  original=orig_rating * allowance if orig_rating else None,
