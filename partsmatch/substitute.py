@@ -34,7 +34,7 @@ from partsmatch import __version__
 from partsmatch.catalog.models import CrossRef, Part
 from partsmatch.catalog.queries import records
 from partsmatch.catalog.records import PartRecord
-from partsmatch.errors import InputError
+from partsmatch.errors import InputError, SimulationError
 from partsmatch.rules import capacitor
 from partsmatch.rules.context import SlotStress, slot_stress
 from partsmatch.rules.engine import evaluate
@@ -307,8 +307,24 @@ class Substitution:
         return d
 
     def judge(self, cand: PartRecord) -> Judged:
-        result, st, resim = self.stress_with(cand)
+        extra: list[Finding] = []
+        try:
+            result, st, resim = self.stress_with(cand)
+        except SimulationError as exc:
+            # one candidate the solver cannot settle must not abort the whole ranking: judge it
+            # on the original's stress and say so
+            result, resim = self.base, ()
+            st = slot_stress(self.base, self.slot, frequency=self.spec.source.frequency,
+                             ambient=self.ambient, external_bleeder=self.external_bleeder,
+                             capacitance=self.c0)
+            extra.append(Finding("resimulation", "warn", None, None, None,
+                                 f"the circuit could not be re-simulated with this part in "
+                                 f"place ({exc}): judged on the original's stress",
+                                 "circuit model"))
         verdict, findings = evaluate(self.original, cand, st, self.policy)
+        if extra:
+            findings = findings + extra
+            verdict = verdict_of(findings)
         margins = [f.margin for f in findings if f.margin is not None and f.unit in ("V", "A",
                                                                                       "A2s")]
         return Judged(part=cand, verdict=verdict, findings=findings,
