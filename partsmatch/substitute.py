@@ -196,7 +196,7 @@ class Substitution:
         self.role = spec.parts[slot].role
         self._analyze = analyze
         self.base = analyze(spec, policy)
-        self._cache: dict[tuple, dict[str, Any]] = {}
+        self._cache: dict[tuple, Any] = {}
         s = spec.parts[slot]
         self.ambient = spec.ambient if spec.ambient is not None else policy["ambient"]
         self.c0 = s.capacitance if self.role == "capacitor" else None
@@ -211,9 +211,15 @@ class Substitution:
 
         key = tuple(sorted(values.items()))
         if key not in self._cache:
-            self._cache[key] = self._analyze(with_part_values(self.spec, self.slot, **values),
-                                             self.policy)
-        return self._cache[key]
+            try:
+                self._cache[key] = self._analyze(with_part_values(self.spec, self.slot, **values),
+                                                 self.policy)
+            except SimulationError as exc:  # cached too: the same values fail the same way
+                self._cache[key] = exc
+        out = self._cache[key]
+        if isinstance(out, SimulationError):
+            raise out
+        return out
 
     def _grid(self, k: int, bleeder: float | None) -> dict[str, Any]:
         if k == 0 and bleeder == self.spec.parts[self.slot].bleeder:
@@ -294,7 +300,10 @@ class Substitution:
         pairs = {
             "capacitor": [(cand.capacitance, o.capacitance or self.c0),
                           (cand.voltage_ac, o.voltage_ac), (cand.voltage_dc, o.voltage_dc)],
-            "diode": [(cand.vrrm, o.vrrm), (cand.if_avg, o.if_avg), (cand.ifsm, o.ifsm)],
+            # VF too: without it a diode with a higher drop (less modelled surge) outranked the
+            # original's exact twin on the margin tie-break (bench supply: QRF1010 over ORV-R1K10)
+            "diode": [(cand.vrrm, o.vrrm), (cand.if_avg, o.if_avg), (cand.ifsm, o.ifsm),
+                      (cand.vf, o.vf)],
             "fuse": [(cand.rated_current, o.rated_current), (cand.voltage, o.voltage),
                      (cand.breaking_capacity, o.breaking_capacity)],
         }[self.role]
