@@ -122,7 +122,7 @@ def test_energy_and_discharge_follow_the_peak(oven_l_report):
 def test_cautions(oven_report):
     text = " ".join(oven_report["cautions"])
     for phrase in ("Discharge, short and measure before touching", "fail open",
-                   "Dielectric absorption", "maker's data", "stores up to", "bleeder takes"):
+                   "Dielectric absorption", "maker's data", "Stored energy", "bleeder takes"):
         assert phrase in text
     no_bleeder = analyze(with_part_values(oven(), "C1", bleeder=None))
     assert no_bleeder["slots"]["C1"]["discharge_s"] is None

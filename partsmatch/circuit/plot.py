@@ -75,13 +75,18 @@ def plot_waveforms(spec, waves: dict, path: str | Path, *,
 
     t = waves["t"]
     t_scale, t_unit = (1e3, "ms") if t[-1] >= 1e-3 else (1e6, "µs")
-    vkeys = ["v(source)"] + [f"v({s})" for s, p in spec.parts.items()
-                             if p.role in ("capacitor", "diode")] + ["v(load)"]
+    caps = [s for s, p in spec.parts.items() if p.role == "capacitor"]
+    diodes = [s for s, p in spec.parts.items() if p.role == "diode"]
+    shown_note = ""
+    if len(caps) > 2 or len(diodes) > 2:  # a multiplier: the first and last of each column
+        caps, diodes = [caps[0], caps[-1]], [diodes[0], diodes[-1]]
+        shown_note = f" ({', '.join(caps + diodes)} shown)"
+    vkeys = ["v(source)"] + [f"v({s})" for s in caps + diodes] + ["v(load)"]
     limits = rating_limits(spec, ratings)
     vmax = max(float(np.abs(waves[k]).max()) for k in vkeys)
     vmax = max([vmax] + [abs(v) for axis, _, v in limits if axis == "v"])
     v_scale, v_unit = _scale(vmax, "V")
-    ikeys = [f"i({s})" for s, p in spec.parts.items() if p.role == "diode"]
+    ikeys = [f"i({s})" for s in diodes]
     imax = max([float(np.abs(waves[k]).max()) for k in ikeys] + [1e-12])
     i_scale, i_unit = _scale(imax, "A")
 
@@ -95,8 +100,8 @@ def plot_waveforms(spec, waves: dict, path: str | Path, *,
     ax.set_ylabel(f"voltage ({v_unit})")
     ax.grid(True, alpha=0.3)
     ax2 = ax.twinx()
-    for k in ikeys:
-        ax2.plot(t * t_scale, waves[k] * i_scale, lw=1.0, alpha=0.8, color="tab:red",
+    for k, colour in zip(ikeys, ("tab:red", "tab:purple")):
+        ax2.plot(t * t_scale, waves[k] * i_scale, lw=1.0, alpha=0.8, color=colour,
                  label=f"{k[2:-1]} current")
     ax2.set_ylabel(f"diode current ({i_unit})", color="tab:red")
     for axis, label, value in limits:
@@ -107,7 +112,7 @@ def plot_waveforms(spec, waves: dict, path: str | Path, *,
     handles2 = ax2.get_legend_handles_labels()
     ax.legend(handles[0] + handles2[0], handles[1] + handles2[1], loc="upper left",
               fontsize=8, framealpha=0.85)
-    ax.set_title(title or f"{spec.name}: two steady-state cycles", fontsize=10)
+    ax.set_title(title or f"{spec.name}: two steady-state cycles{shown_note}", fontsize=10)
     fig.tight_layout()
     fig.savefig(path)
     plt.close(fig)

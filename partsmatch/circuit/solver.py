@@ -136,10 +136,15 @@ class Run:
 
 @dataclass
 class SteadyState:
+    """A verified periodic orbit: its state ``x`` at t = 0, the run of one period from it,
+    the Newton ``iterations`` taken, the ``periods`` simulated in all (trials included) and the
+    verified ``residual`` (largest relative change of a state over one period)."""
+
     x: np.ndarray
     run: Run
     iterations: int
     residual: float
+    periods: int = 0
 
 
 class Netlist:
@@ -569,7 +574,7 @@ class Netlist:
         for it in range(1, max_iter + 1):
             residual = self._residual(run, x, x + f)
             if residual <= tol or (newton_landed and residual <= tol_grazing):
-                return SteadyState(x, run, sims, residual)
+                return SteadyState(x, run, it - 1, residual, sims)
             # Newton step on the period map with the mode sequence frozen (exact for it)
             A = run.phi[:self.nx, :self.nx]
             try:
@@ -607,7 +612,7 @@ class Netlist:
                 break
         residual = self._residual(run, x, x + f)
         if residual <= tol or (newton_landed and residual <= tol_grazing):
-            return SteadyState(x, run, sims, residual)
+            return SteadyState(x, run, it, residual, sims)
         raise SimulationError(f"no periodic steady state verified after {sims} simulated "
                               f"periods (residual {residual:.2g})")
 

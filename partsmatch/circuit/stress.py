@@ -282,7 +282,7 @@ def _solve(spec: CircuitSpec, net: Netlist, voltage_factor: float
            ) -> tuple[SteadyState, dict[str, Any]]:
     t = time.perf_counter()
     ss = net.periodic_steady_state(_start(spec, net, voltage_factor))
-    return ss, {"periods": ss.iterations, "residual": ss.residual,
+    return ss, {"iterations": ss.iterations, "periods": ss.periods, "residual": ss.residual,
                 "wall_s": time.perf_counter() - t, "events": ss.run.events}
 
 
@@ -301,26 +301,32 @@ def cautions(spec: CircuitSpec, slots: dict[str, Any], policy) -> list[str]:
     max_t = policy["max_discharge_time"] if "max_discharge_time" in policy else None
     out: list[str] = []
     total = 0.0
+    stored: list[str] = []
+    bled: list[str] = []
+    unbled: list[str] = []
     for slot, d in slots.items():
         if d["role"] != "capacitor" or d["v_peak"] is None:
             continue
         p = spec.parts[slot]
         total += d["energy_j"]
-        state = d["states"]["v_peak"]
-        out.append(f"{slot} stores up to {fq(d['energy_j'], 'J')} at {fq(abs(d['v_peak']), 'V')} "
-                   f"({state}).")
+        stored.append(f"{slot} {fq(d['energy_j'], 'J')} at {fq(abs(d['v_peak']), 'V')} "
+                      f"({d['states']['v_peak']})")
         if p.bleeder:
-            msg = (f"{slot}: its {fq(p.bleeder, 'ohm')} bleeder takes "
-                   f"{fq(d['discharge_s'], 's')} to bring it to {fq(safe, 'V')}, if the bleeder "
-                   "is intact")
+            msg = (f"{slot}'s {fq(p.bleeder, 'ohm')} bleeder takes {fq(d['discharge_s'], 's')} "
+                   f"to bring it to {fq(safe, 'V')}")
             if max_t is not None and d["discharge_s"] is not None and d["discharge_s"] > max_t:
                 msg += f" (longer than the policy's {fq(max_t, 's')})"
-            out.append(msg + ".")
+            bled.append(msg)
         else:
-            out.append(f"{slot} has no bleeder: it can hold a lethal charge for hours or days "
-                       "after switch-off.")
-    if total > 0:
-        out.append(f"Total stored energy up to {fq(total, 'J')}.")
+            unbled.append(slot)
+    if stored:
+        out.append("Stored energy at the worst peak: " + "; ".join(stored)
+                   + (f"; {fq(total, 'J')} in all." if len(stored) > 1 else "."))
+    if bled:
+        out.append("Discharge by bleeder, if intact: " + "; ".join(bled) + ".")
+    if unbled:
+        out.append(f"{', '.join(unbled)} {'has' if len(unbled) == 1 else 'have'} no bleeder: "
+                   "a lethal charge can remain for hours or days after switch-off.")
     out += [
         "Discharge, short and measure before touching: short each capacitor's terminals with an "
         "insulated discharge tool and confirm zero volts with a meter rated for the voltage.",

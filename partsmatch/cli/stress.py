@@ -65,9 +65,16 @@ def catalog_ratings(g, spec) -> dict[str, dict[str, Any]]:
 
     out: dict[str, dict[str, Any]] = {}
     try:
+        from pathlib import Path
+
         from partsmatch.catalog import db
         from partsmatch.catalog.queries import find_part
 
+        url = db.resolve_url(g.db)
+        if url.startswith("sqlite:///") and not Path(url.split("///", 1)[1]).is_file():
+            # a plot must not create a catalog file as a side effect
+            typer.echo("note: no rating lines (no catalog database yet)", err=True)
+            return out
         engine = g.engine()
         with db.session_scope(engine) as session:
             for slot, name in named.items():
@@ -130,7 +137,8 @@ def print_report(report: dict[str, Any]) -> None:
     parts = []
     for label, info in solver.items():
         if isinstance(info, dict) and "periods" in info and "residual" in info:
-            parts.append(f"{label} {info['periods']} periods (residual {info['residual']:.1g})")
+            parts.append(f"{label} in {info['periods']} periods (residual "
+                         f"{info['residual']:.1g})")
     if parts:
         typer.echo("steady states verified: " + "; ".join(parts))
     if "wall_s" in solver:
