@@ -200,9 +200,13 @@ class Substitution:
         s = spec.parts[slot]
         self.ambient = spec.ambient if spec.ambient is not None else policy["ambient"]
         self.c0 = s.capacitance if self.role == "capacitor" else None
-        # the model's bleeder: the original's own if the catalog says it has one, else the board's
+        # the model's bleeder: the original's own if the catalog says it has one, else the board's.
+        # An entered original (--original-spec, id None) says nothing of a bleeder: the circuit's
+        # bleeder may have been inside the failed part, so it is not assumed to stay on the board
+        # (a candidate without one is then told to fit one, never silently passed).
+        self.bleeder_known = original.id is not None or bool(original.bleeder)
         self.external_bleeder = None
-        if self.role == "capacitor" and s.bleeder and not original.bleeder:
+        if self.role == "capacitor" and s.bleeder and not original.bleeder and self.bleeder_known:
             self.external_bleeder = s.bleeder
 
     # -------------------------------------------------------------- simulations
@@ -310,7 +314,8 @@ class Substitution:
         d = sum(abs(math.log(a / b)) for a, b in pairs if a and b)
         if self.role == "capacitor":
             d += abs((cand.tolerance_plus or 0.0) - (o.tolerance_plus or 0.0)) / 100.0
-            d += 0.05 if bool(cand.bleeder) != bool(o.bleeder) else 0.0
+            if self.bleeder_known:
+                d += 0.05 if bool(cand.bleeder) != bool(o.bleeder) else 0.0
         if o.size and cand.size and o.size.strip().lower() != cand.size.strip().lower():
             d += 0.05
         return d
