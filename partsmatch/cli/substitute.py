@@ -89,7 +89,7 @@ def check(
     from sqlalchemy.orm import Session
 
     from partsmatch.circuit.spec import load_circuit
-    from partsmatch.errors import InputError
+    from partsmatch.errors import InputError, PartNotFound
     from partsmatch.report import verdict_text
 
     g = globals_of(ctx)
@@ -116,7 +116,7 @@ def check(
             try:
                 rep = _check_one(session, spec, policy, row["original"], row["candidate"],
                                  row.get("slot") or slot, cache)
-            except InputError as exc:
+            except (InputError, PartNotFound) as exc:  # an unknown part names its row too
                 raise exc.located(file=str(batch), line=line) from None
             cand = rep["candidates"][0]
             results.append({"line": line, "original": row["original"],
