@@ -42,7 +42,8 @@ R_SHUNT = 1e12  #: ohm, from every node to ground
 R_FUSE_OPEN = 1e14  #: ohm, an open fuse: far above R_OFF, so that it takes the whole voltage
 STEPS_PER_PERIOD = 512
 CHUNK = 128  #: first chunk of steps taken at once after an event (doubles while none comes)
-LAMBDA_MIN = 1 / 16  #: shortest backtracked Newton step before a plain period is taken
+MU_FIRST = 0.05  #: regularisation after a first rejected Newton step
+MU_MAX = 20.0  #: beyond this a plain simulated period is taken instead
 STEP_LIMIT = 1.0  #: largest Newton step of a state, in units of its scale (source peak)
 
 _PADE13 = (64764752532480000.0, 32382376266240000.0, 7771770303897600.0, 1187353796428800.0,
@@ -499,7 +500,10 @@ class Netlist:
             segments.append(Segment(t + seg_t, np.column_stack([Z[:, :i + 1], z_ev]), mode))
             if jac:
                 phi = E @ self._pow(md, i) @ phi
+            old_mode = mode
             mode = self._flip(mode, md, z_ev)
+            if jac and mode != old_mode:
+                phi = self._saltation(md, self.mode(mode), z_ev) @ phi
             # start the new mode a moment (1e-6 period) later: the state then lies on its slow
             # manifold (a node held only by off-state resistances has settled), and no
             # non-physical spike of the event instant reaches the recorded waveforms
@@ -513,6 +517,21 @@ class Netlist:
                 raise SimulationError("the switching does not settle (more than "
                                       f"{limit} switching events); check the load and parts")
         return Run(segments, z, mode, phi, events)
+
+    def _saltation(self, md: _Mode, md2: _Mode, z: np.ndarray) -> np.ndarray:
+        """Jacobian jump at a switching event: I + (f+ - f-) dg / (dg . f-), with dg the
+        gradient of the condition that crossed and f-/f+ the vector fields before and after
+        (the event time's dependence on the start state). Where the fields agree at the event
+        (a diode switching at zero current with no inductor in series) this is the identity."""
+        s = md.sgn * (md.G @ z)
+        k = int(np.argmin(np.where(md.sgn != 0, np.abs(s), np.inf)))
+        dg = md.G[k]
+        f_minus = md.M @ z
+        rate = float(dg @ f_minus)
+        if rate == 0.0 or not math.isfinite(rate):
+            return np.eye(self.nz)
+        jump = md2.M @ z - f_minus
+        return np.eye(self.nz) + np.outer(jump, dg) / rate
 
     def _flip(self, mode: tuple[bool, ...], md: _Mode, z: np.ndarray) -> tuple[bool, ...]:
         """The mode after an event at z: flip the switch at its boundary, then any that the
@@ -548,7 +567,11 @@ class Netlist:
         capacitors leak through the off-state resistances between pulses. The search then ends
         on the fixed point of the last conducting mode sequence, where conduction vanishes; it
         is accepted when the residual is within ``tol_grazing`` and it was reached by a full,
-        unclipped Newton step (not by drifting through states that merely leak slowly).
+        unclipped Newton step, or its period has switching events (diodes that conduct, if
+        barely): not a state that merely leaks slowly with every diode far from conduction. Near
+        such orbits the period map is not smooth and Newton steps can overshoot; the search then
+        takes plain simulated periods, and accepts when the distance to the orbit they converge
+        to, estimated as residual / (1 - contraction per period), is within ``tol_grazing``.
 
         Raises:
             SimulationError: no orbit verified within ``max_iter`` simulated periods.
@@ -571,48 +594,72 @@ class Netlist:
         run, f, norm = evaluate(x)
         sims = 1
         newton_landed = False  # x is the fixed point of the previous run's mode sequence
-        for it in range(1, max_iter + 1):
+        mu = 0.0  # pseudo-transient regularisation of the Newton step
+        rho = 1.0  # contraction of the last plain period (|f| after / |f| before)
+        plain = False  # the last step was a plain simulated period
+        it = 0
+        while True:
             residual = self._residual(run, x, x + f)
-            if residual <= tol or (newton_landed and residual <= tol_grazing):
-                return SteadyState(x, run, it - 1, residual, sims)
-            # Newton step on the period map with the mode sequence frozen (exact for it)
+            if (residual <= tol
+                    or (residual <= tol_grazing and (newton_landed or run.events > 0))
+                    or (plain and rho < 0.95 and residual / (1 - rho) <= tol_grazing)):
+                return SteadyState(x, run, it, residual, sims)
+            if sims >= max_iter:
+                break
+            if plain and rho < 0.5:
+                # plain periods converge fast here (a grazing orbit, where the period map is
+                # not smooth and Newton steps overshoot): keep taking them
+                x = x + f
+                run, f, norm_new = evaluate(x)
+                sims += 1
+                if run is None:
+                    raise SimulationError("the steady-state search left the circuit's range")
+                rho = norm_new / norm if norm > 0 else 0.0
+                norm = norm_new
+                newton_landed = False
+                continue
+            it += 1
+            # Newton step on the period map with the mode sequence frozen (exact for it, with
+            # the saltation at each event), regularised as in pseudo-transient continuation:
+            # ((1 + mu) I - A) dx = f. mu = 0 is plain Newton; a rejected step raises mu, which
+            # shortens the step along the slow directions (A near 1: a capacitor that no diode
+            # charges in this mode sequence, a bleeder-only decay) where the affine solve of
+            # one sequence lands far inside another; accepted steps lower it again.
             A = run.phi[:self.nx, :self.nx]
-            try:
-                dx = np.linalg.solve(ident - A, f)
-            except np.linalg.LinAlgError:
-                dx = f
-            if not np.all(np.isfinite(dx)):
-                dx = f
-            # trust region: a mode sequence in which some capacitor never charges leaves
-            # (I - A) nearly singular; never move a state by more than the source peak
-            big = float(np.max(np.abs(dx) / scale))
-            clipped = big > STEP_LIMIT
-            if clipped:
-                dx *= STEP_LIMIT / big
-            # backtracking: the affine solve of one mode sequence may land where another
-            # sequence holds (e.g. a bleeder-only decay predicts a fully discharged capacitor)
-            lam = 1.0
+            plain = False
             while True:
-                trial = x + lam * dx
+                try:
+                    dx = np.linalg.solve((1 + mu) * ident - A, f)
+                except np.linalg.LinAlgError:
+                    dx = f
+                if not np.all(np.isfinite(dx)):
+                    dx = f
+                # trust region: never move a state by more than the source peak at once
+                big = float(np.max(np.abs(dx) / scale))
+                clipped = big > STEP_LIMIT
+                if clipped:
+                    dx *= STEP_LIMIT / big
+                trial = x + dx
                 run_t, f_t, norm_t = evaluate(trial)
                 sims += 1
-                if norm_t < (1 - lam / 4) * norm or lam <= LAMBDA_MIN:
+                if run_t is not None and norm_t < norm:
+                    newton_landed = mu == 0.0 and not clipped
+                    mu = mu * norm_t / norm if mu > 1e-6 else 0.0
                     break
-                lam /= 4
-            if run_t is None or norm_t >= norm:
-                # no descent along the Newton direction: take one plain simulated period
-                trial, run_t, f_t, norm_t = x + f, *evaluate(x + f)
-                sims += 1
-                if run_t is None:
-                    raise SimulationError("the steady-state search left the circuit's range")
-                lam = 0.0
-            newton_landed = lam == 1.0 and not clipped
+                mu = max(4 * mu, MU_FIRST)
+                if mu > MU_MAX or sims >= max_iter:
+                    # no descent: take one plain simulated period
+                    trial, run_t, f_t, norm_t = x + f, *evaluate(x + f)
+                    sims += 1
+                    if run_t is None:
+                        raise SimulationError("the steady-state search left the circuit's "
+                                              "range")
+                    plain = True
+                    newton_landed = False
+                    rho = norm_t / norm if norm > 0 else 0.0
+                    mu = MU_FIRST
+                    break
             x, run, f, norm = trial, run_t, f_t, norm_t
-            if sims > max_iter:
-                break
-        residual = self._residual(run, x, x + f)
-        if residual <= tol or (newton_landed and residual <= tol_grazing):
-            return SteadyState(x, run, it, residual, sims)
         raise SimulationError(f"no periodic steady state verified after {sims} simulated "
                               f"periods (residual {residual:.2g})")
 
