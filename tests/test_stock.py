@@ -100,16 +100,14 @@ def test_add_take_move_list(shop):
     take_stock(shop, DIODE, "D-03", 10)
     assert _quantities(shop)[(DIODE, "D-03")] == 0
 
-
-def test_costs_part_names_and_whole_floats(shop):
     # a cost given replaces the line's cost, none given keeps it
-    add_stock(shop, CAP, "A", 2, unit_cost=10.0)
-    add_stock(shop, CAP, "B", 2, unit_cost=12.0)
-    add_stock(shop, CAP, "A", 1)
-    add_stock(shop, CAP, "B", 1, unit_cost=11.0)
-    move_stock(shop, CAP, "A", "B", 1)              # an existing target keeps its own cost
-    assert {s.location: s.unit_cost for s in list_stock(shop, CAP)} == {"A": 10.0, "B": 11.0}
-    assert add_stock(shop, CAP, "A", 3.0).quantity_after == 5   # 2 + 1 - 1 + 3
+    add_stock(shop, FUSE, "A", 2, unit_cost=10.0)
+    add_stock(shop, FUSE, "B", 2, unit_cost=12.0)
+    add_stock(shop, FUSE, "A", 1)
+    add_stock(shop, FUSE, "B", 1, unit_cost=11.0)
+    move_stock(shop, FUSE, "A", "B", 1)              # an existing target keeps its own cost
+    assert {s.location: s.unit_cost for s in list_stock(shop, FUSE)} == {"A": 10.0, "B": 11.0}
+    assert add_stock(shop, FUSE, "A", 3.0).quantity_after == 5   # 2 + 1 - 1 + 3
 
     # parts are named as find_part reads them
     add_stock(shop, "HX-D12-350", "D-01", 1)          # bare part number, unique
@@ -124,6 +122,26 @@ def test_costs_part_names_and_whole_floats(shop):
 
 
 # ------------------------------------------------------------------ errors change nothing
+BAD_VALUES = [
+    lambda e: add_stock(e, CAP, "A1-07", 0),
+    lambda e: add_stock(e, CAP, "A1-07", -3),
+    lambda e: add_stock(e, CAP, "A1-07", 1.5),
+    lambda e: add_stock(e, CAP, "A1-07", True),
+    lambda e: add_stock(e, CAP, "A1-07", "2"),
+    lambda e: add_stock(e, CAP, "A1-07", 2**31),
+    lambda e: add_stock(e, CAP, "A1-07", 1, unit_cost=-1.0),
+    lambda e: add_stock(e, CAP, "A1-07", 1, unit_cost=float("nan")),
+    lambda e: add_stock(e, CAP, "", 1),
+    lambda e: add_stock(e, CAP, "L" * 41, 1),
+    lambda e: add_stock(e, CAP, "A\n1", 1),
+    lambda e: take_stock(e, CAP, "A1-07", 0),
+    lambda e: move_stock(e, CAP, "A1-07", "A1-07", 1),
+    lambda e: move_stock(e, CAP, "A1-07", " A1-07 ", 1),
+    lambda e: list_stock(e, kind="transistor"),
+    lambda e: movements(e, limit=0),
+]
+
+
 SHORTAGES = [
     (lambda e: take_stock(e, CAP, "A1-07", 6), ["A1-07", "5 there", "asked 6", CAP]),
     (lambda e: take_stock(e, CAP, "Z9", 1), ["no stock line", "Z9", "asked 1", "5 at A1-07"]),
@@ -132,7 +150,8 @@ SHORTAGES = [
 ]
 
 
-def test_take_of_more_than_is_there_is_an_error_and_nothing_changes(shop):
+def test_errors_change_nothing(shop):
+    """A take of more than is there, and every bad value, raise and leave every row as it was."""
     add_stock(shop, CAP, "A1-07", 5)
     before = _rows(shop)
     for action, words in SHORTAGES:
@@ -143,31 +162,6 @@ def test_take_of_more_than_is_there_is_an_error_and_nothing_changes(shop):
         for w in words:
             assert w in message, (w, message)
         assert _rows(shop) == before
-
-
-BAD_VALUES = [
-    lambda e: add_stock(e, CAP, "A1", 0),
-    lambda e: add_stock(e, CAP, "A1", -3),
-    lambda e: add_stock(e, CAP, "A1", 1.5),
-    lambda e: add_stock(e, CAP, "A1", True),
-    lambda e: add_stock(e, CAP, "A1", "2"),
-    lambda e: add_stock(e, CAP, "A1", 2**31),
-    lambda e: add_stock(e, CAP, "A1", 1, unit_cost=-1.0),
-    lambda e: add_stock(e, CAP, "A1", 1, unit_cost=float("nan")),
-    lambda e: add_stock(e, CAP, "", 1),
-    lambda e: add_stock(e, CAP, "L" * 41, 1),
-    lambda e: add_stock(e, CAP, "A\n1", 1),
-    lambda e: take_stock(e, CAP, "A1", 0),
-    lambda e: move_stock(e, CAP, "A1", "A1", 1),
-    lambda e: move_stock(e, CAP, "A1", " A1 ", 1),
-    lambda e: list_stock(e, kind="transistor"),
-    lambda e: movements(e, limit=0),
-]
-
-
-def test_bad_values_are_errors_and_change_nothing(shop):
-    add_stock(shop, CAP, "A1", 4)
-    before = _rows(shop)
     for i, call in enumerate(BAD_VALUES):
         with pytest.raises(InputError):
             call(shop)
@@ -281,6 +275,19 @@ def test_mirrored_equivalences_added_at_once_are_recorded_once(shop, db_url):
 
 
 # ------------------------------------------------------------------ CLI
+CLI_ERRORS = [
+    (("stock", "take", CAP, "A1-07", "99"), 2, ["A1-07", "3 there", "asked 99"]),
+    (("stock", "take", CAP, "A1-07", "many"), 2, ["QTY", "many"]),
+    (("stock", "add", CAP, "A1-07", "0"), 2, ["quantity"]),
+    (("stock", "add", CAP, "A1-07", "1", "--cost", "cheap"), 2, ["--cost"]),
+    (("stock", "add", "NO-SUCH-9", "A1-07", "1"), 2, ["NO-SUCH-9"]),
+    (("stock", "history", "--limit", "-1"), 2, ["limit"]),
+    (("stock", "list", "--kind", "valve"), 2, ["kind"]),
+    (("xref", "add", CAP, CAP), 2, ["two different parts"]),
+    (("xref", "add", CAP, TWIN, "--relation", "alike"), 2, ["relation"]),
+]
+
+
 def test_cli_round_trip_with_json(shop, db_url, cli):
     base = ("--db", db_url)
     code, out, err = cli(*base, "stock", "add", CAP, "A1-07", "6", "--cost", "14.5",
@@ -321,25 +328,10 @@ def test_cli_round_trip_with_json(shop, db_url, cli):
     code, out, _ = cli(*base, "xref", "list")
     assert code == 0 and "equivalent" in out and TWIN in out
 
-
-CLI_ERRORS = [
-    (("stock", "take", CAP, "A1-07", "99"), 2, ["A1-07", "5 there", "asked 99"]),
-    (("stock", "take", CAP, "A1-07", "many"), 2, ["QTY", "many"]),
-    (("stock", "add", CAP, "A1-07", "0"), 2, ["quantity"]),
-    (("stock", "add", CAP, "A1-07", "1", "--cost", "cheap"), 2, ["--cost"]),
-    (("stock", "add", "NO-SUCH-9", "A1-07", "1"), 2, ["NO-SUCH-9"]),
-    (("stock", "history", "--limit", "-1"), 2, ["limit"]),
-    (("stock", "list", "--kind", "valve"), 2, ["kind"]),
-    (("xref", "add", CAP, CAP), 2, ["two different parts"]),
-    (("xref", "add", CAP, TWIN, "--relation", "alike"), 2, ["relation"]),
-]
-
-
-def test_cli_errors_are_one_line(shop, db_url, cli):
-    add_stock(shop, CAP, "A1-07", 5)
+    # errors: exit 2, one line on stderr, nothing on stdout, nothing changed
     before = _rows(shop)
     for args, code, words in CLI_ERRORS:
-        got, out, err = cli("--db", db_url, *args)
+        got, out, err = cli(*base, *args)
         assert (got, out) == (code, ""), (args, err)
         assert err.startswith("error: ") and err.count("\n") == 1, err
         for w in words:
