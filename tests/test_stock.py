@@ -139,6 +139,9 @@ BAD_VALUES = [
     lambda e: move_stock(e, CAP, "A1-07", " A1-07 ", 1),
     lambda e: list_stock(e, kind="transistor"),
     lambda e: movements(e, limit=0),
+    lambda e: take_stock(e, CAP, "A1-07", 1, note="job\x00"),   # PostgreSQL text holds no NUL
+    lambda e: take_stock(e, "ZB\x00", "A1-07", 1),
+    lambda e: take_stock(e, "  ", "A1-07", 1),
 ]
 
 
@@ -283,6 +286,7 @@ CLI_ERRORS = [
     (("stock", "add", "NO-SUCH-9", "A1-07", "1"), 2, ["NO-SUCH-9"]),
     (("stock", "history", "--limit", "-1"), 2, ["limit"]),
     (("stock", "list", "--kind", "valve"), 2, ["kind"]),
+    (("stock", "move", CAP, "A1-07", "A1-07", "1"), 2, ["two different locations"]),
     (("xref", "add", CAP, CAP), 2, ["two different parts"]),
     (("xref", "add", CAP, TWIN, "--relation", "alike"), 2, ["relation"]),
 ]

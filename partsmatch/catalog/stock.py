@@ -195,8 +195,8 @@ def _resolve(bind: Engine | Session, part: PartRef) -> tuple[int, str, str]:
             return row[0], row[1], row[2]
         from partsmatch.catalog.queries import find_part
 
-        if not part.strip():
-            raise InputError("empty part name", value=part)
+        if not part.strip() or "\x00" in part:
+            raise InputError(f"not a part name: {part!r}", value=part)
         rec = find_part(session, part)
     assert rec.id is not None
     return rec.id, rec.maker, rec.part_number
@@ -236,6 +236,8 @@ def _note(value: Any) -> str | None:
         return None
     if not isinstance(value, str):
         raise InputError(f"a note is text, not {value!r}", value=value)
+    if "\x00" in value:
+        raise InputError("a note cannot hold a NUL character", value=value)
     return value.strip() or None
 
 
