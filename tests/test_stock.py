@@ -217,12 +217,13 @@ def test_crossrefs_both_directions_duplicates_and_self_reference(shop):
     assert (y.part_a, y.part_b, y.relation) == (FUSE, CAP, "replaces")
 
     before = list_crossrefs(shop)
-    for a, b, rel in [(CAP, TWIN, "equivalent"),   # same pair again
-                      (TWIN, CAP, "equivalent"),   # equivalence holds both ways
-                      (FUSE, CAP, "replaces"),
-                      (CAP, CAP, "equivalent"),    # a part with itself
-                      ("zembrook:ZB-C095-21K", CAP, "replaces")]:
-        with pytest.raises(InputError):
+    for a, b, rel, why in [
+            (CAP, TWIN, "equivalent", "already recorded"),    # same pair again
+            (TWIN, CAP, "equivalent", "holds both ways"),     # equivalence holds both ways
+            (FUSE, CAP, "replaces", "already recorded"),
+            (CAP, CAP, "equivalent", "two different parts"),  # a part with itself
+            ("zembrook:ZB-C095-21K", CAP, "replaces", "two different parts")]:  # by another name
+        with pytest.raises(InputError, match=why):
             add_crossref(shop, a, b, relation=rel)
     with pytest.raises(InputError, match="relation"):
         add_crossref(shop, CAP, DIODE, relation="similar")
