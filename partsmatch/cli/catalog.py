@@ -169,21 +169,38 @@ def parts_import(
     json_out: bool = typer.Option(False, "--json", help="Print the report as JSON."),
 ) -> None:
     """Import a catalog CSV as one transaction: the first bad row aborts it, nothing changes."""
+    import time
+
     from partsmatch.catalog.io import import_csv
 
     engine = globals_of(ctx).engine()
     progress = None
-    if sys.stderr.isatty():
-        def progress(n: int) -> None:
-            sys.stderr.write(f"\r{n:,} rows read")
+    shown = [0.0]  # when the progress line was last drawn (0: never)
+    if sys.stderr.isatty():  # a progress line on a terminal only, never into a pipe or a log
+        start = time.monotonic()
+
+        def progress(rows: int, fraction: float | None) -> None:
+            now = time.monotonic()
+            if now - shown[0] < 0.2 and (fraction or 0.0) < 1.0:
+                return
+            shown[0] = now
+            rate = rows / max(now - start, 1e-6)
+            text = f"{rows:>12,} rows  {rate:>9,.0f} rows/s"
+            if fraction is not None:
+                done = int(fraction * 24)
+                text = f"[{'#' * done}{'.' * (24 - done)}] {fraction * 100:5.1f}%  " + text
+            sys.stderr.write("\r" + text)
             sys.stderr.flush()
     kwargs = dict(update=update, dry_run=dry_run, ignore_extra=ignore_extra, progress=progress)
-    if str(file) == "-":
-        report = import_csv(engine, stream=sys.stdin, name="<stdin>", **kwargs)
-    else:
-        report = import_csv(engine, file, **kwargs)
-    if progress:
-        sys.stderr.write("\n")
+    try:
+        if str(file) == "-":
+            report = import_csv(engine, stream=sys.stdin, name="<stdin>", **kwargs)
+        else:
+            report = import_csv(engine, file, **kwargs)
+    finally:
+        if shown[0]:
+            sys.stderr.write("\n")
+            sys.stderr.flush()
     if json_out:
         emit_json(report.to_dict())
         return
