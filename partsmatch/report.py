@@ -119,6 +119,11 @@ def verdict_text(report: dict[str, Any], *, show_passes: bool = False) -> str:
             lines.append("      " + finding_line(f))
         if not shown:
             lines.append("      every rule passes")
+    judged = report.get("judged")
+    if judged:
+        more = f"; {judged['not_shown']} more not shown (--limit)" if judged["not_shown"] else ""
+        lines.append(f"judged {judged['candidates']} candidates: {judged['accept']} accept, "
+                     f"{judged['caution']} caution, {judged['reject']} reject{more}")
     lines.append("")
     lines.append("HIGH VOLTAGE — before you touch anything:")
     lines += [f"  - {c}" for c in report["cautions"]]

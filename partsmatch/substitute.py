@@ -208,6 +208,12 @@ class Substitution:
         self.external_bleeder = None
         if self.role == "capacitor" and s.bleeder and not original.bleeder and self.bleeder_known:
             self.external_bleeder = s.bleeder
+        self.base_stress = slot_stress(self.base, slot, frequency=spec.source.frequency,
+                                       ambient=self.ambient,
+                                       external_bleeder=self.external_bleeder,
+                                       capacitance=self.c0)
+        #: the slot's continuous stress with the original in place (worst of the steady states)
+        self.continuous = self.base_stress.continuous
 
     # -------------------------------------------------------------- simulations
     def _simulate(self, **values: Any) -> dict[str, Any]:
@@ -275,9 +281,12 @@ class Substitution:
             if abs(cand.vf - model_vf) > VF_RESIM_FRACTION * self.spec.source.v_peak:
                 result = self._simulate(forward_voltage=cand.vf)
                 resim = (f"VF={cand.vf:g} V",)
-        st = slot_stress(result, self.slot, frequency=self.spec.source.frequency,
-                         ambient=self.ambient, external_bleeder=self.external_bleeder,
-                         capacitance=self.c0)
+        if result is self.base:
+            st = self.base_stress
+        else:
+            st = slot_stress(result, self.slot, frequency=self.spec.source.frequency,
+                             ambient=self.ambient, external_bleeder=self.external_bleeder,
+                             capacitance=self.c0)
         st = replace(st, load_change=load_change, other_changes=other, resimulated=resim)
         return result, st, resim
 
@@ -348,14 +357,39 @@ class Substitution:
 
 
 # ------------------------------------------------------------------ candidates
+#: How many candidates of each prefilter query are judged (the closest to the original first).
+PREFILTER_LIMIT = 250
+
+
+def _closeness_sql(role: str, o: PartRecord, c0: float | None):
+    """SQL expression of a candidate's distance from the original (relative differences of the
+    main ratings; the Python ranking refines it with log ratios, tolerance and size)."""
+    from sqlalchemy import func, literal
+
+    def rel(col, ref):
+        return func.abs(func.coalesce(col, 0.0) - ref) / ref if ref else literal(0.0)
+
+    if role == "capacitor":
+        return rel(Part.capacitance, o.capacitance or c0) + rel(Part.voltage_ac, o.voltage_ac) \
+            + rel(Part.voltage_dc, o.voltage_dc)
+    if role == "diode":
+        return rel(Part.vrrm, o.vrrm) + rel(Part.if_avg, o.if_avg)
+    return rel(Part.rated_current, o.rated_current) + rel(Part.voltage, o.voltage)
+
+
 def prefilter(session: Session, sub: Substitution, *, in_stock: bool = False,
-              limit: int = 5000) -> list[PartRecord]:
+              limit: int = PREFILTER_LIMIT) -> list[PartRecord]:
     """Candidates of the slot's kind inside indexed rating windows (SQL range queries).
 
     Windows (wide enough to show the near misses that ``--all`` lists as rejected):
     capacitors within twice the allowed capacitance deviation of the original; diodes with VRRM
-    at least half the peak reverse voltage; fuses from half to twice the original's current.
+    at least half the continuous peak reverse voltage; fuses from half to twice the original's
+    current. Of each window the ``limit`` parts closest to the original are taken, and as many
+    of the closest parts in stock (in-stock parts rank before closer ones that are not), so that
+    a catalog of a million parts still judges a few hundred.
     """
+    from partsmatch.catalog.models import Stock
+
     o, role = sub.original, sub.role
     stmt = select(Part).where(Part.kind == _ROLE_KIND[role])
     if role == "capacitor":
@@ -364,18 +398,23 @@ def prefilter(session: Session, sub: Substitution, *, in_stock: bool = False,
         w = 2.0 * max(tol, sub.policy["cap_window"]) / 100.0
         stmt = stmt.where(Part.capacitance.between(c0 * (1 - w), c0 * (1 + w)))
     elif role == "diode":
-        vr = sub.base["slots"][sub.slot].get("v_reverse_peak") or 0.0
+        vr = sub.continuous.get("v_reverse_peak") or 0.0
         stmt = stmt.where(Part.vrrm >= 0.5 * abs(vr))
     elif role == "fuse":
         i0 = o.rated_current or sub.spec.parts[sub.slot].rating
         if i0:
             stmt = stmt.where(Part.rated_current.between(0.5 * i0, 2.0 * i0))
-    if in_stock:
-        from partsmatch.catalog.models import Stock
-
-        stmt = stmt.where(Part.id.in_(select(Stock.part_id).where(Stock.quantity > 0)))
-    stmt = stmt.order_by(Part.maker, Part.part_number).limit(limit)
-    return records(session, list(session.scalars(stmt)))
+    if o.id is not None:
+        stmt = stmt.where(Part.id != o.id)
+    stocked = Part.id.in_(select(Stock.part_id).where(Stock.quantity > 0))
+    order = (_closeness_sql(role, o, sub.c0), Part.maker, Part.part_number)
+    ids: dict[int, None] = {}
+    queries = [stmt.where(stocked)] if in_stock else [stmt.where(stocked), stmt]
+    for q in queries:
+        for pid in session.scalars(q.with_only_columns(Part.id).order_by(*order).limit(limit)):
+            ids[pid] = None
+    parts = list(session.scalars(select(Part).where(Part.id.in_(list(ids)))))
+    return records(session, sorted(parts, key=lambda p: (p.maker, p.part_number)))
 
 
 def crossrefs_for(session: Session, original: PartRecord) -> list[dict[str, Any]]:
@@ -422,11 +461,15 @@ def replace_part(session: Session, spec, original: PartRecord, *, slot: str | No
     cands = [c for c in prefilter(session, sub, in_stock=in_stock)
              if not (original.id is not None and c.id == original.id)]
     judged = sorted((sub.judge(c) for c in cands), key=Judged.sort_key)
+    counts = {v: sum(1 for j in judged if j.verdict == v) for v in ("accept", "caution", "reject")}
     if not include_rejected:
         judged = [j for j in judged if j.verdict != "reject"]
+    listed = len(judged)
     if limit:
         judged = judged[:limit]
-    return _report(sub, judged, crossrefs_for(session, original))
+    report = _report(sub, judged, crossrefs_for(session, original))
+    report["judged"] = {"candidates": len(cands), **counts, "not_shown": listed - len(judged)}
+    return report
 
 
 def check_part(session: Session | None, spec, original: PartRecord, candidate: PartRecord, *,

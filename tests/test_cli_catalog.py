@@ -63,3 +63,10 @@ def test_errors_are_one_line_with_exit_codes(sqlite_url, cli, tmp_path):
 def test_version(cli):
     code, out, _ = cli("--version")
     assert code == 0 and out.startswith("partsmatch ")
+
+
+def test_usage_errors_exit_2(cli):
+    code, _, err = cli("parts", "list", "--limit", "x")
+    assert code == 2 and "--limit" in err and "Traceback" not in err
+    code, _, err = cli("no-such-command")
+    assert code == 2

@@ -124,7 +124,8 @@ def test_replace_json_follows_the_verdict_contract(pm):
 
 
 def test_replace_all_lists_rejects_with_reasons(pm):
-    code, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--all", "--json")
+    code, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--all", "--limit", "0",
+                      "--json")
     assert code == 0
     rep = json.loads(out)
     by = {c["part_number"]: c for c in rep["candidates"]}
@@ -134,15 +135,16 @@ def test_replace_all_lists_rejects_with_reasons(pm):
         assert any(f["rule"] == rule and f["status"] == "fail" for f in by[pn]["findings"])
     verdicts = [c["verdict"] for c in rep["candidates"]]
     assert verdicts.index("reject") > max(i for i, v in enumerate(verdicts) if v != "reject")
-    code, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--all")
+    code, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--all", "--limit", "0")
     assert "REJECT" in out and "cap_dc_only" in out
 
 
 def test_replace_in_stock_and_limit(pm):
-    _, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--json")
+    _, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--limit", "0", "--json")
     every = json.loads(out)
     assert "Brakemoor:BKM-25-0950-HB" in names(every)          # out of stock (demo README)
-    code, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--in-stock", "--json")
+    code, out, _ = pm("replace", "BKM-21-0950-HB", "--circuit", C60, "--in-stock", "--limit",
+                      "0", "--json")
     assert code == 0
     stocked = json.loads(out)
     assert stocked["candidates"] and all(c["in_stock"] > 0 for c in stocked["candidates"])

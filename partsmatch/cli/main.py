@@ -83,13 +83,10 @@ def run(argv: list[str] | None = None) -> int:
         typer.echo("interrupted", err=True)
         return 130
     except Exception as exc:  # click usage errors and the like
-        import click
-
-        if isinstance(exc, click.exceptions.UsageError):
-            typer.echo(f"error: {exc.format_message()}", err=True)
-            return 2
-        if isinstance(exc, click.exceptions.ClickException):
-            typer.echo(f"error: {exc.format_message()}", err=True)
+        # typer may carry its own copy of click, so recognise click's exceptions by shape
+        fmt = getattr(exc, "format_message", None)
+        if callable(fmt) and isinstance(getattr(exc, "exit_code", None), int):
+            typer.echo(f"error: {' '.join(str(fmt()).split())}", err=True)
             return exc.exit_code
         if debug:
             raise

@@ -33,7 +33,8 @@ def replace(
                                       "catalog, e.g. \"0.95uF 2100VAC 3%\"."),
     in_stock: bool = typer.Option(False, "--in-stock", help="Only parts in stock."),
     show_all: bool = typer.Option(False, "--all", help="Also list rejected parts with reasons."),
-    limit: int = typer.Option(None, "--limit", min=1, help="At most this many candidates."),
+    limit: int = typer.Option(10, "--limit", min=0, help="At most this many candidates "
+                              "(0: all)."),
     json_out: bool = typer.Option(False, "--json", help="Print the verdicts as JSON."),
 ) -> None:
     """Rank the catalog's substitutes for a failed part, checked against its circuit's stress."""
@@ -49,7 +50,7 @@ def replace(
     with Session(g.engine()) as session:
         original, slot_name = resolve_original(session, spec, part, original_spec, slot)
         report = replace_part(session, spec, original, slot=slot_name, policy=policy,
-                              in_stock=in_stock, include_rejected=show_all, limit=limit)
+                              in_stock=in_stock, include_rejected=show_all, limit=limit or None)
     if json_out:
         emit_json(report)
     else:
