@@ -221,6 +221,10 @@ def test_capacitor_ac_rms(policy, v_ac, c_vac, o_vac, freq, status):
     st = stress("capacitor", {"v_ac_rms": v_ac}, frequency=freq)
     f = capacitor.voltage_ac(cap(voltage_ac=o_vac), cap(voltage_ac=c_vac), st, policy)
     assert f.status == status
+    # rating is the VAC rating itself in every branch; margin = rating / stress (DESIGN.md 4)
+    assert f.rating == c_vac
+    if freq < 1000:
+        assert math.isclose(f.margin, c_vac / v_ac)
 
 
 @pytest.mark.parametrize("v_ac, c_vdc, o_kw, status", [

@@ -143,7 +143,16 @@ def voltage_ac(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Polic
                        cand.voltage_ac / v_ac if v_ac else None,
                        f"AC RMS {fq(v_ac, 'V')} against VAC {fq(cand.voltage_ac, 'V')}", basis,
                        "V")
-    return f
+    # above the allowance (a warn on the original's evidence, or a fail): report against the VAC
+    # rating itself like the other branches, so that rating and margin mean one thing
+    return Finding(f.rule, f.status, f.stress, cand.voltage_ac,
+                   cand.voltage_ac / v_ac if v_ac else None,
+                   f"AC RMS {fq(v_ac, 'V')} is above {allowance:g} x the VAC rating "
+                   f"{fq(cand.voltage_ac, 'V')}"
+                   + (f" (original {fq(orig.voltage_ac, 'V')} AC: it worked here, so check the "
+                      "circuit values before trusting the model)" if f.status == "warn"
+                      else (f" (original {fq(orig.voltage_ac, 'V')} AC)" if orig.voltage_ac
+                            else "")), basis, "V")
 
 
 def dc_only(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Policy) -> Finding:
