@@ -188,13 +188,6 @@ def test_replace_bad_input_exit_2(pm, args, needle):
 
 
 # ---------------------------------------------------------------- check
-#: cli/main.py run() calls app(..., standalone_mode=False) and ignores what it returns; click
-#: returns (does not raise) the code of a typer.Exit in that mode, so every `raise typer.Exit(1)`
-#: of a command exits 0. The contract (DESIGN.md section 4) says 1. Fix belongs in main.py.
-EXIT_1_LOST = pytest.mark.xfail(strict=True, reason=(
-    "cli/main.py run() drops the exit code click returns for typer.Exit in "
-    "standalone_mode=False: check rejects (and --strict cautions, batch rejects) exit 0"))
-
 CHECKS = [
     ("ORV-12K55S", "QX12550S", C60, "accept"),
     ("BKM-21-0950-HB", "VH2100-95H-B10", C60, "caution"),
@@ -218,7 +211,6 @@ def test_check_verdicts(pm, orig, cand, circuit, verdict):
         assert c == 0
 
 
-@EXIT_1_LOST
 @pytest.mark.parametrize("orig, cand, circuit, verdict", CHECKS[1:])
 def test_check_exit_1_on_reject_and_strict_caution(pm, orig, cand, circuit, verdict):
     args = ("check", orig, cand, "--circuit", circuit)
@@ -274,7 +266,6 @@ def test_batch_json_and_csv(pm, tmp_path):
     assert "REJECT" in out and "CAUTION" in out
 
 
-@EXIT_1_LOST
 def test_batch_exit_1_if_any_reject(pm, tmp_path):
     f = write_csv(tmp_path / "proposals.csv", PROPOSALS)
     for fmt in ("--json", "--csv", None):
@@ -290,7 +281,6 @@ def test_batch_without_rejects_exits_0(pm, tmp_path):
     assert [r["verdict"] for r in json.loads(out)] == ["accept", "caution"]
 
 
-@EXIT_1_LOST
 def test_batch_strict_exits_1_on_caution(pm, tmp_path):
     f = write_csv(tmp_path / "ok.csv", [("ORV-12K55S", "QX12550S", "D1"),
                                         ("LKS-HV5-1000", "FHV-5K-1A0-40", "F1")])
@@ -416,3 +406,17 @@ def test_demo_text_never_touches_the_users_catalog(cli, tmp_path, monkeypatch):
     assert code == 0, err
     assert not db_file.exists()
     assert "VH2100-95H-B10" in out and "REJECT" in out and "HIGH VOLTAGE" in out
+
+
+# ---------------------------------------------------------------- shop cross-references
+def test_replace_shows_the_shops_cross_references(pm):
+    # issue 4: `replace` shows the shop's recorded cross-references for the original
+    code, _, err = pm("xref", "add", "Orvane:ORV-12K55S", "Quillon:QX12550S", "--note",
+                      "bench-tested 2026")
+    assert code == 0, err
+    code, out, _ = pm("replace", "ORV-12K55S", "--circuit", C60, "--json")
+    x = json.loads(out)["crossrefs"]
+    assert len(x) == 1 and x[0]["part"] == "Quillon:QX12550S"
+    assert x[0]["note"] == "bench-tested 2026"
+    code, out, _ = pm("replace", "ORV-12K55S", "--circuit", C60)
+    assert "bench-tested 2026" in out

@@ -68,7 +68,10 @@ def run(argv: list[str] | None = None) -> int:
     args = sys.argv[1:] if argv is None else argv
     debug = "--debug" in args
     try:
-        app(args=args, prog_name="partsmatch", standalone_mode=False)
+        # without standalone mode click returns (does not raise) the code of a typer.Exit
+        code = app(args=args, prog_name="partsmatch", standalone_mode=False)
+        if isinstance(code, int) and code:
+            return code
     except PartsmatchError as exc:
         if debug:
             raise
