@@ -13,6 +13,7 @@ apostrophe (OWASP "CSV injection" guidance); import removes exactly that apostro
 from __future__ import annotations
 
 import csv
+import gc
 import io
 import json
 import math
@@ -554,6 +555,10 @@ def import_csv(engine: Engine, path: str | Path | None = None, *, stream: TextIO
     report = ImportReport(file=name, dry_run=dry_run)
     dbapi_error = getattr(engine.dialect.dbapi, "Error", SQLAlchemyError)
     reader = csv.reader(fh)
+    # The import allocates millions of short-lived tuples and makes no reference cycles worth
+    # collecting; the cycle collector's passes over them cost about a seventh of the time.
+    gc_was_enabled = gc.isenabled()
+    gc.disable()
     try:
         with fh:
             with engine.connect() as conn:
@@ -585,6 +590,9 @@ def import_csv(engine: Engine, path: str | Path | None = None, *, stream: TextIO
 
         msg = " ".join(str(getattr(exc, "orig", None) or exc).split())[:200]
         raise DatabaseError(f"import rolled back: {msg}", file=name) from None
+    finally:
+        if gc_was_enabled:
+            gc.enable()
     return report
 
 
@@ -857,10 +865,18 @@ class _Import:
                                  file=self.name, line=line, column="quantity")
         if not wanted:
             return
-        look = [k for k in wanted if k[0] in seen]
+        look = [k for k in wanted if k[0] in seen] if seen else None
         have = self._find_stock(look) if look else {}
-        inserts, updates, moves = [], [], []
         note = self.note
+        if not have:  # every (part, location) is new: the usual case, in bulk
+            items = wanted.items()
+            self.cur.executemany(self.sql_stock, [(pid, loc, q, c, now)
+                                                  for (pid, loc), (q, c, _) in items])
+            self.cur.executemany(self.sql_move, [(pid, loc, q, q, note, now)
+                                                 for (pid, loc), (q, _, _) in items])
+            self.report.stock_rows += len(wanted)
+            return
+        inserts, updates, moves = [], [], []
         for (pid, loc), (qty, cost, line) in wanted.items():
             old = have.get((pid, loc))
             if old is None:
