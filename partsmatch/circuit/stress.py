@@ -41,6 +41,7 @@ from typing import Any
 import numpy as np
 
 from partsmatch.circuit.solver import Netlist, Segment, SteadyState
+from partsmatch.errors import SimulationError
 from partsmatch.circuit.spec import CircuitSpec
 from partsmatch.circuit.topologies import Wiring, build_netlist, ideal_dc
 
@@ -278,10 +279,16 @@ def _start(spec: CircuitSpec, net: Netlist, voltage_factor: float) -> np.ndarray
     return x0
 
 
-def _solve(spec: CircuitSpec, net: Netlist, voltage_factor: float
-           ) -> tuple[SteadyState, dict[str, Any]]:
+def _solve(spec: CircuitSpec, net: Netlist, voltage_factor: float,
+           x0: np.ndarray | None = None) -> tuple[SteadyState, dict[str, Any]]:
     t = time.perf_counter()
-    ss = net.periodic_steady_state(_start(spec, net, voltage_factor))
+    if x0 is None:
+        ss = net.periodic_steady_state(_start(spec, net, voltage_factor))
+    else:
+        try:  # a neighbouring orbit (the nominal one, scaled to high line) is usually closest
+            ss = net.periodic_steady_state(x0)
+        except SimulationError:
+            ss = net.periodic_steady_state(_start(spec, net, voltage_factor))
     return ss, {"iterations": ss.iterations, "periods": ss.periods, "residual": ss.residual,
                 "wall_s": time.perf_counter() - t, "events": ss.run.events}
 
@@ -352,9 +359,10 @@ def analyze(spec: CircuitSpec, policy=None) -> dict[str, Any]:
     no_load_differs = spec.load.type != "none"
     solver: dict[str, Any] = {}
 
-    def steady(label: str, load: bool, vf: float) -> tuple[dict[str, Any], SteadyState]:
+    def steady(label: str, load: bool, vf: float, x0: np.ndarray | None = None
+               ) -> tuple[dict[str, Any], SteadyState]:
         net, wiring = build_netlist(spec, load=load, voltage_factor=vf)
-        ss, info = _solve(spec, net, vf)
+        ss, info = _solve(spec, net, vf, x0)
         res = _steady_measures(spec, net, wiring, ss, safe)
         if has_fuse:
             peak, rms = _fuse_open(spec, net, wiring, ss, vf, load)
@@ -367,9 +375,9 @@ def analyze(spec: CircuitSpec, policy=None) -> dict[str, Any]:
         no_load, ss_n = steady("no_load", False, 1.0)
     else:
         no_load, ss_n = loaded, ss_l
-    hl_l, _ = steady("high_line_loaded", True, factor)
+    hl_l, _ = steady("high_line_loaded", True, factor, ss_l.x * factor)  # nominal orbit, scaled
     if no_load_differs:
-        hl_n, _ = steady("high_line_no_load", False, factor)
+        hl_n, _ = steady("high_line_no_load", False, factor, ss_n.x * factor)
         high_line = _worst_of(spec, [("a", hl_l), ("b", hl_n)], with_states=False)
     else:
         high_line = _worst_of(spec, [("a", hl_l)], with_states=False)
