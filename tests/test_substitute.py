@@ -215,13 +215,7 @@ RIGHT = [
     ("oven_doubler_50hz", "D1", "Orvane:ORV-12K45S"),
     ("oven_doubler_50hz", "F1", "Larkspan:LKS-HV5-1000S"),
     ("inverter_doubler_30khz", "C1", "Varnholt:VHD-10N-6K0-J"),
-    pytest.param(
-        "inverter_doubler_30khz", "D1", "Orvane:ORV-10K50F",
-        marks=pytest.mark.xfail(strict=True, reason=(
-            "demo data / policy, not ranking: the 0.5 A original itself runs at 0.457 A mean "
-            "forward current (high line), above the policy's 0.80 x IF(AV) = 0.40 A, so its "
-            "twin is a caution while the 0.75 A parts QX12750F and ORV-08K75F are accepted and "
-            "rank first (accept before caution, issue 4)"))),
+    ("inverter_doubler_30khz", "D1", "Orvane:ORV-10K50F"),
     ("bench_halfwave", "C1", "Pellmark:PMK-E63-2200"),
     ("bench_halfwave", "D1", "Orvane:ORV-R1K10"),
     ("bench_halfwave", "F1", "Larkspan:LKS-520-T2A-L"),
