@@ -243,12 +243,14 @@ def raised(draw, part: PartRecord, role: str) -> PartRecord:
     return dataclasses.replace(part, **changes)
 
 
-@SETTINGS
+@settings(SETTINGS, max_examples=300)
 @given(data=st.data(), role=st.sampled_from(["capacitor", "diode", "fuse"]))
 def test_raising_a_rating_never_worsens_the_verdict(data, role):
     gen = {"capacitor": capacitors, "diode": diodes, "fuse": fuses}[role]
     o = data.draw(gen())
-    c = data.draw(gen())
+    # a candidate like the original (so that its verdict is often not already a reject), or
+    # one drawn on its own
+    c = near(data.draw, o, RAISE[role]) if data.draw(st.booleans()) else data.draw(gen())
     if role == "capacitor":
         s = data.draw(cap_stress(capacitance=o.capacitance))
         c = dataclasses.replace(c, capacitance=o.capacitance)
