@@ -406,3 +406,31 @@ def test_fuse_replace_same_on_every_database(demo_engine, world, policy):
     assert [(c["maker"], c["part_number"], c["verdict"]) for c in rep["candidates"]] == \
         [(c["maker"], c["part_number"], c["verdict"]) for c in ref["candidates"]]
     assert stocked["candidates"] and all(c["in_stock"] > 0 for c in stocked["candidates"])
+
+
+# ---------------------------------------------------------------- worse on one rating
+def test_worse_parts_where_the_stress_decides(world):
+    """data/README.md "Not traps": parts worse than the original on one rating, judged by the
+    stress (DESIGN.md 3: fail above the rating, warn inside the policy margin)."""
+    def finding(circuit, slot, part, rule):
+        j = world.sub(circuit, slot).judge(world.part(part))
+        return j, next(f for f in j.findings if f.rule == rule)
+
+    # 8 kV diode: high-line no-load reverse voltage about 6.5 kV, above 0.70 x 8 kV = 5.6 kV
+    # (NASA EEE-INST-002 margin, from memory) but below 8 kV: a warning, not a reject
+    j, f = finding("oven_doubler_60hz", "D1", "Orvane:ORV-08K45S", "diode_vrrm")
+    assert f.status == "warn" and 5600.0 < f.stress < 8000.0 and j.verdict == "caution"
+    # 500 ns at 30 kHz is 1.5 % of the period, inside the 2 % policy fraction
+    _, f = finding("inverter_doubler_30khz", "D1", "Quillon:QX16500F", "diode_trr")
+    assert f.status == "pass" and f.margin == pytest.approx((0.02 / 30e3) / 500e-9)
+    # 10 kV multiplier stage capacitors against the 15 kV original: worse, but not overstressed
+    j, f = finding("multiplier_3stage", "C1", "Tessaline:TSL-10KD-2N2K", "cap_voltage_peak")
+    assert f.status == "pass" and j.verdict != "reject"
+    # 0.8 A fuse for a 1 A original: the lower rating warns with its nuisance margin; its
+    # rerated 0.72 A (0.5 %/degC above 25 degC at 45 degC) is below the RMS current, and it is
+    # worse than the original, so the continuous-current rule fails it
+    j, f = finding("oven_doubler_60hz", "F1", "Larkspan:LKS-HV5-0800", "fuse_current")
+    assert f.status == "warn" and "nuisance" in f.message
+    cont = next(x for x in j.findings if x.rule == "fuse_continuous")
+    assert cont.rating == pytest.approx(0.8 * (1 - 0.005 * 20))
+    assert (cont.status == "fail") == (cont.stress > cont.rating)
