@@ -31,7 +31,9 @@ makers (rapidfuzz ``fuzz.ratio`` >= 85 on case-folded text, or a prefix of four 
 and with descriptions (case-insensitive substring). The kind of part is the ``kind`` argument,
 else the kind word, else inferred (capacitance -> capacitor; resistance or power -> resistor;
 an IEC 60127 characteristic or breaking capacity -> fuse; a time (trr) -> diode; a current ->
-diode or fuse; a voltage alone -> every kind). Each rating becomes an indexed range filter on its
+diode or fuse; a voltage alone -> every kind; of several inferred kinds only those where the
+rating has an index are searched: diode VRRM, fuse rated current, capacitor capacitance or AC
+voltage). Each rating becomes an indexed range filter on its
 column, with these windows (common practice, no source: wide enough to show near parts, narrow
 enough to stay a short index range):
 
@@ -75,11 +77,12 @@ query, a query longer than :data:`MAX_QUERY` characters, an unknown kind or a li
 from __future__ import annotations
 
 import math
+import re
 import weakref
 from dataclasses import dataclass, field
 from typing import Any, Iterable, Sequence
 
-from sqlalchemy import and_, case, exists, func, literal, or_, select, text
+from sqlalchemy import and_, case, event, exists, func, literal, or_, select, text
 from sqlalchemy.exc import SQLAlchemyError
 from sqlalchemy.orm import Session
 
@@ -146,6 +149,7 @@ class _Backend:
     byte_order: bool  # text compares in code-point order (SQLite; PostgreSQL with C collation)
     trgm: bool        # PostgreSQL trigram index on parts.pn_norm
     has_ln: bool      # SQL ln() available
+    maker_index: str | None = None  # SQLite name of the (maker, part_number) unique index
 
 
 _BACKENDS: "weakref.WeakKeyDictionary[Any, _Backend]" = weakref.WeakKeyDictionary()
@@ -166,13 +170,24 @@ def _backend(session: Session) -> _Backend:
         byte_order = str(collate) in ("C", "POSIX") or str(collate).startswith("C.")
         trgm = session.execute(text(
             "SELECT 1 FROM pg_indexes WHERE indexname = 'ix_parts_pn_norm_trgm'")).first() is not None
-    elif dialect == "sqlite":
+    maker_index = None
+    if dialect == "sqlite":
         try:
             session.execute(text("SELECT ln(2.0)"))
         except SQLAlchemyError:
             session.rollback()
             has_ln = False
-    info = _Backend(dialect, byte_order, trgm, has_ln)
+        # a UNIQUE constraint is an automatic index on SQLite, named by SQLite
+        for (name,) in session.execute(text(
+                "SELECT name FROM pragma_index_list('parts') ORDER BY name")):
+            cols = [r[0] for r in session.execute(
+                text("SELECT name FROM pragma_index_info(:n) ORDER BY seqno"), {"n": name})]
+            if cols == ["maker", "part_number"]:
+                maker_index = name
+                break
+    if dialect == "sqlite" and not event.contains(engine, "before_cursor_execute", _put_index):
+        event.listen(engine, "before_cursor_execute", _put_index, retval=True)
+    info = _Backend(dialect, byte_order, trgm, has_ln, maker_index)
     _BACKENDS[engine] = info
     return info
 
@@ -598,7 +613,8 @@ def _find(session: Session, text_: str, kind: str | None, in_stock: bool,
                 c.add(score, [why], "part_number")
                 best_pn = max(best_pn, score)
 
-    text_hits = _text_reading(session, be, q, kind, filters, limit)
+    text_hits = _text_reading(session, be, q, kind, filters, limit,
+                              scan_descriptions=best_pn < GOOD_SCORE)
     for pid, (score, reasons, how, maker, pn) in text_hits.items():
         c = cands.setdefault(pid, _Cand(maker=maker, part_number=pn))
         for h in how:
@@ -702,37 +718,50 @@ def _pn_contains(session: Session, be: _Backend, qn: str, filters: list) -> list
 
 
 def _text_reading(session: Session, be: _Backend, q: _Query, kind: str | None, filters: list,
-                  limit: int) -> dict[int, tuple[float, list[str], list[str], str, str]]:
-    """Ratings, maker and description words: part id -> (score, reasons, how, maker, pn)."""
+                  limit: int, scan_descriptions: bool = True,
+                  ) -> dict[int, tuple[float, list[str], list[str], str, str]]:
+    """Ratings, maker and description words: part id -> (score, reasons, how, maker, pn).
+
+    A query of description words alone (no rating, no maker) reads every description (no index
+    serves a word inside a text): that runs only when ``scan_descriptions`` is true, which
+    :func:`find` sets when the part-number reading found nothing good.
+    """
     has_ratings = any(k in q.ratings for k in (
         "capacitance", "resistance", "voltage", "voltage_ac", "voltage_dc", "voltage_dc_fuse",
         "current", "rated_current", "time", "power", "breaking_capacity", "characteristic"))
-    if not (has_ratings or q.makers or q.desc_words):
+    if not (has_ratings or q.makers or (q.desc_words and scan_descriptions)):
         return {}
     fetch = limit * 2 + 20
     out: dict[int, tuple[float, list[str], list[str], str, str]] = {}
     if has_ratings:
         _ensure_ln(session, be)
+        plans = []
         for k in _kinds_for(q, kind):
             terms = _terms_for(k, q.ratings)
             char = q.ratings.get("characteristic") if k == "fuse" else None
-            if not terms and not char:
-                continue
-            out.update(_rated(session, be, q, k, terms, char, filters, fetch))
+            if terms or char:
+                plans.append((k, terms, char))
+        if not (kind or q.kind_hint) and len(plans) > 1:
+            # an inferred kind (a bare voltage or current) is searched only where that rating
+            # has an index; naming the kind searches the others
+            indexed = [p for p in plans if _primary(p[0], p[1]) is not None]
+            plans = indexed or plans
+        for k, terms, char in plans:
+            out.update(_rated(session, be, q, k, terms, char, filters, fetch, limit))
     elif q.makers:
         out.update(_rated(session, be, q, kind or q.kind_hint, [], None,
-                          filters + [Part.maker.in_(q.makers)], fetch))
+                          filters + [Part.maker.in_(q.makers)], fetch, limit))
     else:
         words = [or_(*[func.lower(Part.description).like(_like_word(w), escape="\\")
                        for w in q.desc_words])]
         hint = q.kind_hint if not kind else None
-        out.update(_rated(session, be, q, None, [], None, filters + words, fetch,
+        out.update(_rated(session, be, q, None, [], None, filters + words, fetch, limit,
                           cap=SUBSTRING_ROWS, kind_piece=hint))
     return out
 
 
 def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: list[_Term],
-           char: object, filters: list, fetch: int, cap: int | None = None,
+           char: object, filters: list, fetch: int, limit: int, cap: int | None = None,
            kind_piece: str | None = None,
            ) -> dict[int, tuple[float, list[str], list[str], str, str]]:
     """One SQL query: the window of every term, scored in SQL, best ``fetch`` rows.
@@ -751,11 +780,9 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
         colexpr = cols[0] if len(cols) == 1 else func.coalesce(*cols)
         conds.append(colexpr.between(t.lo, t.hi))
         pieces.append((t.weight, _rating_sql(t, colexpr)))
-    maker_words = list(q.maker_words)
-    desc_words = q.desc_words
-    for _w in maker_words:
+    for _w in q.maker_words:
         pieces.append((2.0, case((Part.maker.in_(q.makers), literal(1.0)), else_=literal(0.0))))
-    for w in desc_words:
+    for w in q.desc_words:
         pieces.append((1.0, case((func.lower(Part.description).like(_like_word(w), escape="\\"),
                                   literal(1.0)), else_=literal(0.0))))
     if kind_piece:
@@ -774,22 +801,142 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
     cols = [Part.id, Part.maker, Part.part_number, Part.kind, Part.description,
             Part.tolerance_minus, Part.tolerance_plus, Part.characteristic,
             *[getattr(Part, c) for c in colnames]]
-    stmt = (select(*cols, score.label("score")).where(*conds)
-            .order_by(score.desc(), _c(Part.maker, be), _c(Part.part_number, be))
-            .limit(cap or fetch))
-    if be.dialect == "sqlite" and kind in _INDEXED and terms:
-        used = {c for t in terms for c in t.columns if len(t.columns) == 1}
-        for col in _INDEXED[kind]:
-            if col in used:
-                stmt = stmt.with_hint(Part, f"INDEXED BY ix_parts_kind_{col}", "sqlite")
-                break
+    base = select(*cols, score.label("score")).where(*conds)
+    by_score = (score.desc(), _c(Part.maker, be), _c(Part.part_number, be))
+    primary = _primary(kind, terms)
+
+    def run(stmt, index: str | None = None,
+            ) -> dict[int, tuple[float, list[str], list[str], str, str]]:
+        return _process(_execute(session, be, stmt, index), q, terms, char, total, tol,
+                        kind_piece)
+
+    if primary is None:
+        return run(base.order_by(*by_score).limit(cap or fetch))
+    index = f"ix_parts_kind_{primary.columns[0]}" if be.dialect == "sqlite" else None
+    pcol = getattr(Part, primary.columns[0])
+    share = 100.0 * primary.weight / total
+
+    # A. Many parts may meet every asked value exactly (a catalog holds thousands of 0.95 uF /
+    # 2100 VAC parts): the best are then the first of that top band in maker and part-number
+    # order, read along the (maker, part_number) index over as few makers as the band's size
+    # suggests, rather than every row of the window.
+    band = _band_rows(session, be, base, score, kind, primary, pcol, fetch, q)
+    if band is not None:
+        hits = run(band, be.maker_index)
+        if sum(1 for v in hits.values() if round(v[0], 1) >= 100.0) >= limit:
+            return hits
+
+    # B. Distinct values of the primary (indexed) rating, nearest first, from an index-only
+    # GROUP BY; rows are read for the nearest values only, widening until no part further out
+    # could reach the last score kept (its primary rating alone would cost it more).
+    groups = [tuple(r) for r in _execute(session, be, select(pcol, func.count()).where(
+        Part.kind == kind, pcol.between(primary.lo, primary.hi)).group_by(pcol), index)]
+    groups.sort(key=lambda g: (1.0 - _rating_closeness(g[0], primary), g[0]))
+    want, taken = fetch, 0
+    while True:
+        n = 0
+        while taken < len(groups) and (n < want or taken == 0):
+            n += groups[taken][1]
+            taken += 1
+        values = [g[0] for g in groups[:taken]]
+        if not values:
+            return {}
+        window = pcol.between(min(values), max(values))
+        hits = run(base.where(window).order_by(*by_score).limit(fetch), index)
+        if taken >= len(groups):
+            return hits
+        bound = 100.0 - share * (1.0 - _rating_closeness(groups[taken][0], primary))
+        scores = sorted((v[0] for v in hits.values()), reverse=True)
+        if len(scores) >= limit and scores[limit - 1] > bound + 1e-6:
+            return hits
+        want *= 4
+
+
+def _primary(kind: str | None, terms: list[_Term]) -> _Term | None:
+    """The term on the kind's most selective indexed column (models.py (kind, rating) indexes)."""
+    if kind not in _INDEXED:
+        return None
+    for col in _INDEXED[kind]:
+        for t in terms:
+            if t.columns == (col,):
+                return t
+    return None
+
+
+#: The top band: parts whose score rounds to 100.0.
+_BAND = 99.9
+
+
+def _band_rows(session: Session, be: _Backend, base, score, kind: str, primary: _Term, pcol,
+               fetch: int, q: _Query):
+    """Statement for step A, or None when the band looks too small to be worth it."""
+    if not be.byte_order or (be.dialect == "sqlite" and not be.maker_index):
+        return None  # maker order would need a sort of the whole table
+    exact = pcol.between(primary.asked * (1 - 1e-9), primary.asked * (1 + 1e-9))
+    index = f"ix_parts_kind_{primary.columns[0]}" if be.dialect == "sqlite" else None
+    stmt = select(func.count()).select_from(Part).where(Part.kind == kind, exact)
+    in_band = _execute(session, be, stmt, index).scalar() or 0
+    if in_band < 3 * fetch:
+        return None
+    # rows A expects to read (half of the exact-primary parts assumed to meet the other terms)
+    # against the rows B reads for the exact primary value: take the cheaper
+    if not q.maker_words:  # with a maker word A reads only that maker's parts
+        rows = session.execute(select(func.max(Part.id))).scalar() or 0
+        if 2.0 * fetch * rows / in_band > in_band:
+            return None
+    makers = q.makers if q.maker_words else _catalog_makers(session)
+    if not makers:
+        return None
+    # makers to read so that about 4 x fetch band parts are expected among them
+    share = min(1.0, 4.0 * fetch / in_band)
+    upto = makers[min(len(makers) - 1, int(share * len(makers)))]
+    stmt = base.where(score >= _BAND, Part.maker <= upto)
+    if q.maker_words:
+        stmt = stmt.where(Part.maker.in_(q.makers))
+    return stmt.order_by(Part.maker, Part.part_number).limit(fetch)
+
+
+_FROM_PARTS = re.compile(r"\bFROM parts\b")
+_MARK = re.compile(r"/\*pm-index:(\w+)\*/ ?")
+
+
+def _execute(session: Session, be: _Backend, stmt, index: str | None = None):
+    """Run ``stmt``; on SQLite with ``INDEXED BY index`` on its main ``FROM parts``.
+
+    SQLite plans without statistics unless the catalog was analysed, and may pick a rating index
+    that reads a wide window where a narrow one, or the (maker, part_number) order, is what
+    keeps the query short. SQLAlchemy does not render SQLite's INDEXED BY: the statement carries
+    a marker comment (so its compiled form stays cached) that :func:`_put_index` turns into the
+    clause just before the SQL reaches the driver.
+    """
+    if index and be.dialect == "sqlite":
+        stmt = stmt.prefix_with(f"/*pm-index:{index}*/")
+    return session.execute(stmt)
+
+
+def _put_index(conn, cursor, statement, parameters, context, executemany):
+    """``before_cursor_execute`` hook (SQLite): marker comment -> ``INDEXED BY``."""
+    m = _MARK.search(statement) if "/*pm-index:" in statement else None
+    if m:
+        statement = _FROM_PARTS.sub(f"FROM parts INDEXED BY {m.group(1)}",
+                                    _MARK.sub("", statement, count=1), count=1)
+    return statement, parameters
+
+
+def _process(rows, q: _Query, terms: list[_Term], char: object, total: float,
+             tol: float | None, kind_piece: str | None,
+             ) -> dict[int, tuple[float, list[str], list[str], str, str]]:
+    """Python twin of the SQL score, with the reasons, for the rows the database returned."""
+    from partsmatch.units import format_quantity as fq
+
+    maker_words = list(q.maker_words)
+    desc_words = q.desc_words
     out: dict[int, tuple[float, list[str], list[str], str, str]] = {}
-    for row in session.execute(stmt):
+    for row in rows:
         m = row._mapping
         reasons: list[str] = []
         how: list[str] = []
         parts_score = 0.0
-        from partsmatch.units import format_quantity as fq
 
         for t in terms:
             col = next((c for c in t.columns if m[c] is not None), t.columns[0])
