@@ -167,7 +167,12 @@ class Netlist:
         self.steps = steps
         self.vscale = vscale
         self.vtol = 1e-9 * vscale
-        self._settle = 1e-6 * self.period
+        # the moment after an event at which the new mode is judged and stepped from: 20 time
+        # constants L / R_OFF of an inductor left in series with off switches (the only
+        # non-physical fast dynamics here), capped at 1e-5 of a period so as not to hide the
+        # circuit's own fast dynamics (R C of a conducting diode and its capacitor)
+        l_max = max((e.value for e in elements if e.kind == "L"), default=0.0)
+        self._settle = min(1e-5 * self.period, max(1e-12 * self.period, 20 * l_max / R_OFF))
         nodes: list[str] = []
         for e in elements:
             for n in (e.a, e.b):
@@ -567,22 +572,48 @@ class Netlist:
         jump = md2.M @ z - f_minus
         return np.eye(self.nz) + np.outer(jump, dg) / rate
 
+    def _violation(self, mode: tuple[bool, ...], z: np.ndarray) -> float:
+        """How far the conditions of ``mode`` are broken a moment after z (0 if they hold).
+
+        Judged a moment later: a node held only by off-state resistances (an inductor in series
+        with off switches) settles within ~L/R_OFF, and its value at the event itself is not
+        meaningful."""
+        md2 = self.mode(mode)
+        s2 = md2.sgn * (md2.G @ (md2.settle @ z))
+        return max(0.0, -float(s2.min())) if len(s2) else 0.0
+
     def _flip(self, mode: tuple[bool, ...], md: _Mode, z: np.ndarray) -> tuple[bool, ...]:
         """The mode after an event at z: flip the switch at its boundary, then any that the
-        flip leaves inconsistent."""
+        flip leaves inconsistent; if that does not settle (several switches at their boundary
+        at once), try every combination of the switches near their boundary."""
         s = md.sgn * (md.G @ z)
         k = int(np.argmin(np.where(md.sgn != 0, s, np.inf)))
         new = mode[:k] + (not mode[k],) + mode[k + 1:]
         for _ in range(2 * len(mode) + 2):
+            if self._violation(new, z) <= self.vtol:
+                return new
             md2 = self.mode(new)
-            # judge the new mode a moment later: a node held only by off-state resistances
-            # (an inductor in series with off switches) settles within ~L/R_OFF, far less
-            # than this moment, and its value at the event itself is not meaningful
             s2 = md2.sgn * (md2.G @ (md2.settle @ z))
             j = int(np.argmin(s2))
-            if s2[j] >= -self.vtol:
-                return new
             new = new[:j] + (not new[j],) + new[j + 1:]
+        near = [i for i in range(len(mode)) if md.sgn[i] != 0
+                and abs(s[i]) <= 1e-3 * self.vscale][:8]
+        if k not in near:
+            near.insert(0, k)
+        best, best_v = None, math.inf
+        for bits in range(1, 2 ** len(near)):
+            cand = list(mode)
+            for b, i in enumerate(near):
+                if bits >> b & 1:
+                    cand[i] = not cand[i]
+            cand_t = tuple(cand)
+            v = self._violation(cand_t, z)
+            if v < best_v:
+                best, best_v = cand_t, v
+            if v <= self.vtol:
+                return cand_t
+        if best is not None and best_v < 1e-3 * self.vscale:
+            return best
         raise SimulationError("no consistent switching state after an event (the circuit "
                               "chatters)")
 
