@@ -353,3 +353,86 @@ def test_cli_find_json_and_table(cat, cli):
     assert code == 2 and err.startswith("error: empty query")
     code, out, _ = cli("--db", url, "find", "nothing-like-this-zzz")
     assert code == 0 and "no parts found" in out
+
+
+# ------------------------------------------------------------------ a larger catalog, against an oracle
+
+_BIG_MAKERS = ("Amberlode", "Corvistan", "Dremmholt", "Eskavane", "Fyrrow", "Gantequay")
+
+
+def build_big_catalog(engine, n: int = 3000) -> None:
+    """Many diodes sharing a few ratings (thousands of ties), as a large shop catalog has."""
+    import random
+
+    rng = random.Random(7)
+    rows = []
+    for i in range(n):
+        kv = rng.choice((10, 12, 12, 12, 15, 20))
+        ma = rng.choice((350, 350, 450, 500, 1000))
+        maker = _BIG_MAKERS[i % len(_BIG_MAKERS)]
+        pn = f"{maker[:3].upper()}-{kv:02d}K{ma:04d}-{i:05d}"
+        rows.append(dict(kind="diode", maker=maker, part_number=pn,
+                         pn_norm=normalize_part_number(pn), vrrm=kv * 1e3, if_avg=ma * 1e-3,
+                         description=f"HV rectifier {kv} kV"))
+    with engine.begin() as conn:
+        conn.execute(insert(Part), rows)
+
+
+@pytest.fixture(scope="module", params=["sqlite", pytest.param("postgresql", marks=pytest.mark.pg)])
+def big(request, tmp_path_factory):
+    import conftest
+
+    name = None
+    if request.param == "sqlite":
+        url = f"sqlite:///{tmp_path_factory.mktemp('big') / 'catalog.db'}"
+    else:
+        admin = request.getfixturevalue("pg_admin")
+        name, url = conftest._new_pg_database(admin)
+    engine = db.make_engine(url)
+    try:
+        db.init(engine)
+        build_big_catalog(engine)
+        yield engine
+    finally:
+        engine.dispose()
+        if name:
+            conftest._drop_pg_database(request.getfixturevalue("pg_admin"), name)
+
+
+def _oracle(engine, kv: float, ma: float, maker: str | None, limit: int):
+    """Every diode scored by the method the search module documents, written out here: each
+    rating 1 - w |ln(value/asked)| / (10 ln 1.1), clipped at 0 (VRRM: w 3 below, 0.5 above,
+    window 0.8-3 x; IF(AV): w 2 below, 0.3 above, window 0.5-3 x), weighted 2 each, a maker
+    word 2; the weighted share in percent; ties by maker then part number."""
+    import math
+
+    def close(v, asked, below, above):
+        w = below if v < asked else above
+        return max(0.0, 1.0 - w * abs(math.log(v / asked)) / (10 * math.log(1.1)))
+
+    with engine.connect() as conn:
+        rows = conn.execute(select(Part.maker, Part.part_number, Part.vrrm, Part.if_avg)).all()
+    scored = []
+    for mk, pn, v, i in rows:
+        if not (0.8 * kv <= v <= 3 * kv and 0.5 * ma <= i <= 3 * ma):
+            continue
+        parts = [(2, close(v, kv, 3, 0.5)), (2, close(i, ma, 2, 0.3))]
+        if maker:
+            parts.append((2, 1.0 if mk == maker else 0.0))
+        score = 100 * sum(w * c for w, c in parts) / sum(w for w, _ in parts)
+        scored.append((-round(score, 1), mk, pn))
+    scored.sort()
+    return [(pn, -s) for s, _mk, pn in scored[:limit]]
+
+
+@pytest.mark.parametrize("query, kv, ma, maker", [
+    ("12 kV 350 mA diode", 12e3, 0.35, None),          # thousands of exact ties
+    ("12 kV 370 mA diode", 12e3, 0.37, None),          # no exact part
+    ("11 kV 400 mA diode", 11e3, 0.40, None),          # between the catalog's values
+    ("Dremmholt 12 kV 350 mA diode", 12e3, 0.35, "Dremmholt"),
+    ("Fyrrow 14 kV 0.5 A diode", 14e3, 0.5, "Fyrrow"),
+])
+@pytest.mark.parametrize("limit", [5, 20])
+def test_big_catalog_ranking_matches_an_exhaustive_oracle(big, query, kv, ma, maker, limit):
+    got = [(h.part.part_number, h.score) for h in _find(big, query, limit=limit)]
+    assert got == _oracle(big, kv, ma, maker, limit)
