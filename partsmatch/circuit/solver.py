@@ -623,7 +623,7 @@ class Netlist:
         return np.array([math.cos(w), math.sin(w), 1.0])
 
     def periodic_steady_state(self, x0: np.ndarray | None = None, *, tol: float = 1e-7,
-                              tol_grazing: float = 1e-5, max_iter: int = 80) -> SteadyState:
+                              tol_grazing: float = 1e-5, max_iter: int = 150) -> SteadyState:
         """The periodic orbit (state at t = 0 of the source period) and its verified period.
 
         Verified means: a simulated period from the orbit's state returns to it within ``tol``

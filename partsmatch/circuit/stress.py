@@ -403,6 +403,15 @@ def analyze(spec: CircuitSpec, policy=None) -> dict[str, Any]:
         "solver": solver,
     }
     report["cautions"] = cautions(spec, report["slots"], policy)
+    if spec.load.type == "current":
+        drawn = report["by_state"]["loaded"]["load"]["i_mean"]
+        if drawn < 0.98 * spec.load.current:
+            from partsmatch.units import format_quantity as fq
+
+            report["cautions"].insert(0, (
+                f"The supply cannot deliver the load's {fq(spec.load.current, 'A')}: the model's "
+                f"output collapses and the load draws {fq(drawn, 'A')} (below its compliance "
+                "voltage it is modelled as a resistor); the stress figures are for that state."))
     return report
 
 

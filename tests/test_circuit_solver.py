@@ -1,0 +1,94 @@
+"""The piecewise-linear solver itself: linear circuits against their textbook phasor solutions,
+the matrix exponential against SciPy's, and circuits that once broke the steady-state search."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from partsmatch.circuit.solver import Element, Netlist, expm
+from partsmatch.circuit.spec import parse_circuit
+from partsmatch.circuit.stress import analyze
+
+
+def test_expm_matches_scipy():
+    from scipy.linalg import expm as scipy_expm
+
+    rng = np.random.default_rng(7)
+    for scale in (1e-3, 1.0, 30.0, 1e6):  # the last one is as stiff as an inductor beside R_OFF
+        a = rng.normal(size=(6, 6)) * scale
+        a -= np.eye(6) * abs(a).sum()  # stable, like a circuit
+        ref = scipy_expm(a * 1e-3)
+        assert np.allclose(expm(a * 1e-3), ref, rtol=1e-10, atol=1e-12 * max(1, abs(ref).max()))
+
+
+def test_rc_low_pass_phasor():
+    # an RC low pass driven by a sine: |Vc| = Vpk / sqrt(1 + (w R C)^2), lagging by atan(w R C)
+    # (phasor analysis; any circuits textbook)
+    r, c, f, vpk = 1e3, 1e-6, 50.0, 10.0
+    w = 2 * math.pi * f
+    net = Netlist([Element("V", "VS", "s", "0", value=vpk), Element("R", "R1", "s", "o", value=r),
+                   Element("C", "C1", "o", "0", value=c)], w, vscale=vpk)
+    ss = net.periodic_steady_state()
+    out = net.outputs(ss.run.segments)
+    amp = vpk / math.sqrt(1 + (w * r * c) ** 2)
+    assert float(np.abs(out["v(C1)"]).max()) == pytest.approx(amp, rel=1e-4)
+    phase = math.atan(w * r * c)
+    t = out["t"]
+    expected = amp * np.sin(w * t - phase)
+    assert np.max(np.abs(out["v(C1)"] - expected)) < 1e-6 * vpk
+    assert ss.residual < 1e-9
+
+
+def test_rl_current_phasor():
+    # R L in series: |I| = Vpk / sqrt(R^2 + (w L)^2) (phasor analysis)
+    r, ind, f, vpk = 10.0, 0.1, 60.0, 100.0
+    w = 2 * math.pi * f
+    net = Netlist([Element("V", "VS", "s", "0", value=vpk), Element("R", "R1", "s", "m", value=r),
+                   Element("L", "L1", "m", "0", value=ind)], w, vscale=vpk)
+    out = net.outputs(net.periodic_steady_state().run.segments)
+    assert float(np.abs(out["i(L1)"]).max()) == pytest.approx(
+        vpk / math.hypot(r, w * ind), rel=1e-4)
+
+
+@pytest.mark.parametrize(
+    "data",
+    [
+        # 1 F reservoirs at 1 Hz behind 1 H, tube never strikes: nearly defective state matrix
+        {"topology": "full-wave-doubler",
+         "source": {"voltage": "230 V", "frequency": "1 Hz", "inductance": "1 H"},
+         "load": {"type": "threshold", "threshold": "10 kV", "dynamic_resistance": "1 ohm"},
+         "parts": {"C1": {"capacitance": "1 F"}, "C2": {"capacitance": "1 F"},
+                   "F1": {"rating": "10 A"}}},
+        # ideal source into a multiplier with a constant-current load: several diodes switch
+        # at one instant after switch-on
+        {"topology": "multiplier", "stages": 3,
+         "source": {"voltage": 4580, "frequency": 265},
+         "load": {"type": "current", "current": 0.00118},
+         "parts": {"C": {"capacitance": 1.47e-8},
+                   "D": {"forward_voltage": 0.7, "resistance": 1.0}}},
+        # a bridge at 10.8 kHz behind 0.217 H with a tube below Vpk: an inductor left in series
+        # with off switches at every event
+        {"topology": "bridge-rectifier",
+         "source": {"voltage": 292, "frequency": 10.8e3, "resistance": 30.9, "inductance": 0.217},
+         "load": {"type": "threshold", "threshold": 239.4, "dynamic_resistance": 1.075},
+         "parts": {"C1": {"capacitance": 5.02e-9}}},
+        # a multiplier with a threshold load just above the source peak and a small leakage L
+        {"topology": "multiplier", "stages": 3,
+         "source": {"voltage": 260, "frequency": 180, "resistance": 20.4, "inductance": 1.45e-5},
+         "load": {"type": "threshold", "threshold": 275.9, "dynamic_resistance": 4.33},
+         "parts": {"C": {"capacitance": 2.58e-9}}},
+    ],
+    ids=["1F-1Hz-1H", "ideal-source-multiplier", "bridge-10kHz-0.2H", "multiplier-threshold"],
+)
+def test_hard_circuits_reach_a_verified_steady_state(data):
+    r = analyze(parse_circuit(data))
+    for state in ("loaded", "no_load", "high_line_loaded", "high_line_no_load"):
+        if state in r["solver"]:
+            assert r["solver"][state]["residual"] <= 1e-5
+    for slot in r["slots"].values():
+        for key, value in slot.items():
+            if isinstance(value, float):
+                assert math.isfinite(value), key
