@@ -421,7 +421,8 @@ class Netlist:
             return (V @ (np.exp(w * tau) * (Vi @ z))).real
         return expm(md.M * tau) @ z
 
-    def _locate(self, md: _Mode, z0: np.ndarray, dt: float) -> tuple[float, np.ndarray] | None:
+    def _locate(self, md: _Mode, z0: np.ndarray, dt: float, z_dt: np.ndarray | None = None
+                ) -> tuple[float, np.ndarray] | None:
         """Earliest time in (0, dt] at which some switch condition of mode md reaches its
         boundary, starting from z0. Returns (tau, expm(M tau)), or None when the exact state at
         ``dt`` breaks no condition (a false alarm of the interpolated dip test: the slopes of a
@@ -430,7 +431,7 @@ class Netlist:
         Safeguarded Newton on the condition of the switch that breaks first; the bracket
         [lo, hi] always holds the earliest crossing."""
         lo, hi = 0.0, dt
-        z_hi = expm(md.M * hi) @ z0
+        z_hi = expm(md.M * hi) @ z0 if z_dt is None else z_dt
         s_hi = md.sgn * (md.G @ z_hi)
         k = int(np.argmin(s_hi))
         if s_hi[k] >= -self.vtol:
@@ -519,7 +520,7 @@ class Netlist:
                 continue
             chunk = CHUNK
             dt = (taus[i + 1] - taus[i]) * frac
-            found = self._locate(md, Z[:, i], dt)
+            found = self._locate(md, Z[:, i], dt, Z[:, i + 1] if frac == 1.0 else None)
             if found is None:
                 # no crossing after all: keep the samples up to the end of that interval and
                 # go on from there
