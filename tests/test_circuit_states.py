@@ -73,7 +73,7 @@ def test_contract_keys(oven_report):
         for key, state in d["states"].items():
             assert state in STATES or (state is None and d[key] is None)
         for s in STATES:
-            assert set(r["by_state"][s]["slots"][slot]) == set(KEYS[role])
+            assert set(r["by_state"][s]["slots"][slot]) == set(KEYS[role]) | {"role"}
     assert set(r["load"]) == {"v_mean", "v_peak", "i_mean", "p_mean", "states"}
     assert set(r["source"]) == {"i_rms", "states"}
     assert r["circuit"]["source"]["voltage"] == VRMS

@@ -396,7 +396,8 @@ def analyze(spec: CircuitSpec, policy=None) -> dict[str, Any]:
         "slots": worst["slots"],
         "load": worst["load"],
         "source": worst["source"],
-        "by_state": {s: {"slots": {k: dict(v) for k, v in by_state[s]["slots"].items()},
+        "by_state": {s: {"slots": {k: {"role": spec.parts[k].role, **v}
+                                   for k, v in by_state[s]["slots"].items()},
                          "load": dict(by_state[s]["load"]),
                          "source": dict(by_state[s]["source"])} for s in STATES},
         "cautions": [],
