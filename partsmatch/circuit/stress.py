@@ -61,7 +61,7 @@ SOURCE_KEYS = ("i_rms",)
 
 SWITCH_ON_PERIODS = 5
 FUSE_OPEN_PERIODS = 3
-PHASES = 12
+PHASES = 8
 
 
 # --- small measures over non-uniform samples ------------------------------------------------
