@@ -17,7 +17,8 @@ How the steady state is found (ngspice-39, batch mode):
 2. A *measure* run of three periods with a fine maximum step (T/``steps_per_period``). Measures
    are computed by trapezoidal integration over ngspice's raw time points for periods 2 and 3; the
    run counts as settled when every measure of period 3 equals period 2 within ``settle_tol``
-   (relative to the measure's own scale, see :func:`_scale`). If not, settle again from the end
+   (relative to the measure's own size, with the floors of :func:`_floor`; mean currents and
+   power to ten times that; voltage levels and mean currents only: the peak and RMS of a narrow current pulse and a small ripple's RMS vary with the time step's sampling). If not, settle again from the end
    state, up to ``max_rounds`` times; the last comparison is reported in ``RefResult.drift``.
 
 Part models (as the engine describes them):
@@ -426,18 +427,21 @@ def current_scale(ref: Ref) -> float:
 def current_floor(ref: Ref, no_load: bool) -> float:
     """Smallest current (A) a comparison or settle check treats as meaningful.
 
-    Loaded: 1e-5 of :func:`current_scale`. No load: the currents are only what the bleeders
-    draw, so 5 % of Vpk / (smallest bleeder); with no bleeder at all there is no DC path and the
-    currents are the simulators' residue (ngspice's come from rshunt, whose 10 Gohm with the
-    stage capacitance of a multiplier settles over tens of seconds, and from its charge
-    tolerance), so 1e-2 of :func:`current_scale`.
+    ngspice's charge tolerance (reltol 1e-4 of C * V on each capacitor) spread over a period is
+    about 1e-4 / (2 pi) of :func:`current_scale`; a current below about 1e-4 of that scale is
+    resolved by neither simulator, so that is the floor when loaded. With no load the currents
+    are what the bleeders draw: the floor is the larger of that and 5 % of Vpk / (smallest
+    bleeder). With no bleeder either there is no DC path and the currents are the simulators'
+    residue (ngspice's come from rshunt, whose 10 Gohm with a multiplier's stage capacitance
+    settles over tens of seconds, and from its charge tolerance): 1e-2 of the scale.
     """
+    scale = current_scale(ref)
     if not no_load and ref.load["type"] != "none":
-        return 1e-5 * current_scale(ref)
+        return 1e-4 * scale
     bleeders = [b for _, b in ref.caps.values() if b]
     if bleeders:
-        return 0.05 * ref.vpk / min(bleeders)
-    return 1e-2 * current_scale(ref)
+        return max(0.05 * ref.vpk / min(bleeders), 1e-4 * scale)
+    return 1e-2 * scale
 
 
 def _floor(ref: Ref, key: str, no_load: bool) -> float:
@@ -458,12 +462,17 @@ def _drift(ref: Ref, a: dict, b: dict, no_load: bool) -> tuple[float, str]:
         for slot, vals in items:
             other = gb[slot] if slot else gb
             for k, x in vals.items():
-                if k == "role" or k == "i_peak":
-                    # a peak of a narrow pulse differs from period to period by the time step's
-                    # sampling of the pulse, not by settling: the integral measures decide
+                if k == "role" or k in ("i_peak", "i_rms", "i_rms_terminal", "v_ac_rms"):
+                    # the peak and RMS of a narrow pulse (and a small ripple's RMS) differ from
+                    # period to period by the time step's sampling, not by settling: the
+                    # voltage levels and the mean currents (charge balance) decide
                     continue
                 y = other[k]
                 den = max(abs(x), abs(y), _floor(ref, k, no_load))
+                if not k.startswith("v_"):
+                    # mean currents carry the integration's charge error (reltol 1e-4 of C V
+                    # per step): held to ten times the voltages' settle tolerance
+                    den *= 10.0
                 if abs(x - y) / den > worst:
                     worst, where = abs(x - y) / den, f"{slot or sec}.{k}"
     return worst, where
