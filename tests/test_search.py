@@ -54,7 +54,8 @@ CATALOG = [
     (_cap("VDK-2195-JB", "Vendrakh", 0.95, vac=2100.0, tol=5.0), [("A1-02", 2)]),
     (_cap("VDK-2595-HB", "Vendrakh", 0.95, vac=2500.0, tol=3.0), [("A1-03", 1)]),
     (_cap("OQ-21100-H", "Olmsquay", 1.0, vac=2100.0, tol=3.0), []),
-    (_cap("OQ-2090-H", "Olmsquay", 0.90, vac=2000.0, tol=3.0), [("B2-01", 6)]),
+    (_cap("OQ-2090-H", "Olmsquay", 0.90, vac=2000.0, tol=3.0,
+          desc="Öl-gefüllt, film capacitor 0.9 uF"), [("B2-01", 6)]),
     (_cap("TRW-DC95-20", "Tirrowen", 0.95, vdc=2000.0, tol=5.0,
           desc="DC film capacitor, snubber"), [("C3-01", 9)]),
     # the 105J family: 1 uF at ±5 %, a looser and a smaller twin
@@ -259,7 +260,8 @@ def test_bad_options_are_input_errors(cat, kw):
 
 QUERIES = ["KTR-5081-0A", "KTR/5O81/OA", "KTR-501-0A", "5081", "HLV", "0.95uF 2100VAC",
            "0.95uF 2100VAC 3%", "12 kV 350 mA diode", "T 2A 250V", "105J", "12 kV",
-           "Olmsquay", "Vendrakh 0.95uF", "oven doubler", "snubber", "PBK-T2A"]
+           "Olmsquay", "Vendrakh 0.95uF", "oven doubler", "snubber", "PBK-T2A",
+           "Öl-gefüllt", "öl-gefüllt", "GEFÜLLT", "Olmsquay:OQ2O9OH", "maker:OQ-2090-H"]
 
 
 def _signature(engine):
@@ -280,7 +282,8 @@ def test_sqlite_and_postgresql_give_the_same_hits(tmp_path, pg_admin, monkeypatc
             db.init(e)
             build_catalog(e)
         expected = _signature(lite)
-        assert expected["5081"] and expected["KTR-501-0A"]
+        assert expected["5081"] and expected["KTR-501-0A"] and expected["Öl-gefüllt"]
+        assert expected["Olmsquay:OQ2O9OH"][0][1] == "OQ-2090-H"
         with Session(pg) as s:
             be = search._backend(s)
         assert be.trgm, "migration 0002 should have made the pg_trgm index"

@@ -253,7 +253,16 @@ def _ascii_lower(s: str) -> str:
     return s.translate(_ASCII_LOWER)
 
 
-_ASCII_LOWER = str.maketrans("ABCDEFGHIJKLMNOPQRSTUVWXYZ", "abcdefghijklmnopqrstuvwxyz")
+_UPPER, _LOWER = "ABCDEFGHIJKLMNOPQRSTUVWXYZ", "abcdefghijklmnopqrstuvwxyz"
+_ASCII_LOWER = str.maketrans(_UPPER, _LOWER)
+
+
+def _lower_sql(col, be: "_Backend"):
+    """ASCII-only lower case in SQL on every database (PostgreSQL's lower() folds all letters,
+    SQLite's only ASCII), so that a word matches the same descriptions on both."""
+    if be.dialect == "sqlite":
+        return func.lower(col)
+    return func.translate(col, _UPPER, _LOWER)
 
 
 def _parse(text_: str) -> _Query:
@@ -287,7 +296,11 @@ def _parse(text_: str) -> _Query:
 
 
 def _catalog_makers(session: Session) -> list[str]:
-    """Every distinct maker, by an index skip-scan (one seek per maker, not a table scan)."""
+    """Every distinct maker, by an index skip-scan (one seek per maker, not a table scan);
+    read once per :func:`find` call."""
+    cached = session.info.get("_pm_find_makers")
+    if cached is not None:
+        return cached
     rows = session.execute(text(
         "WITH RECURSIVE m(maker) AS ("
         " SELECT min(maker) FROM parts"
@@ -295,7 +308,9 @@ def _catalog_makers(session: Session) -> list[str]:
         " SELECT (SELECT min(p.maker) FROM parts p WHERE p.maker > m.maker)"
         " FROM m WHERE m.maker IS NOT NULL)"
         f" SELECT maker FROM m WHERE maker IS NOT NULL LIMIT {MAX_MAKERS}"))
-    return [r[0] for r in rows]
+    makers = [r[0] for r in rows]
+    session.info["_pm_find_makers"] = makers
+    return makers
 
 
 def _match_makers(q: _Query, makers: list[str]) -> None:
@@ -581,6 +596,7 @@ class _Cand:
 
 def _find(session: Session, text_: str, kind: str | None, in_stock: bool,
           limit: int) -> list[Hit]:
+    session.info.pop("_pm_find_makers", None)
     be = _backend(session)
     q = _parse(text_)
     if ":" in text_:
@@ -752,7 +768,7 @@ def _text_reading(session: Session, be: _Backend, q: _Query, kind: str | None, f
         out.update(_rated(session, be, q, kind or q.kind_hint, [], None,
                           filters + [Part.maker.in_(q.makers)], fetch, limit))
     else:
-        words = [or_(*[func.lower(Part.description).like(_like_word(w), escape="\\")
+        words = [or_(*[_lower_sql(Part.description, be).like(_like_word(w), escape="\\")
                        for w in q.desc_words])]
         hint = q.kind_hint if not kind else None
         out.update(_rated(session, be, q, None, [], None, filters + words, fetch, limit,
@@ -783,7 +799,7 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
     for _w in q.maker_words:
         pieces.append((2.0, case((Part.maker.in_(q.makers), literal(1.0)), else_=literal(0.0))))
     for w in q.desc_words:
-        pieces.append((1.0, case((func.lower(Part.description).like(_like_word(w), escape="\\"),
+        pieces.append((1.0, case((_lower_sql(Part.description, be).like(_like_word(w), escape="\\"),
                                   literal(1.0)), else_=literal(0.0))))
     if kind_piece:
         pieces.append((1.0, case((Part.kind == kind_piece, literal(1.0)), else_=literal(0.0))))
