@@ -63,7 +63,20 @@ fuse's rated current and a resistance and 2 for the other ratings; a matched mak
 2, every other word 1. The score is computed in SQL (``ln`` exists in PostgreSQL and in SQLite
 builds with math functions; a Python ``ln`` is registered on SQLite builds without) so that the
 database returns only the best rows of a window that may hold tens of thousands of parts; Python
-recomputes the same score for the rows returned and writes the reasons.
+recomputes the same score for the rows returned and writes the reasons. How many rows the
+database reads depends on the catalog, not on its size alone:
+
+* A. When thousands of parts meet every asked value exactly (a large catalog holds thousands of
+  0.95 uF / 2100 VAC capacitors), the answer is the first of that top band in maker and part
+  number order; it is read along the (maker, part_number) index, over only as many makers as
+  the band's size (an index-only count) says are needed, when that costs less than B.
+* B. Otherwise the distinct values of the indexed rating (an index-only ``GROUP BY``) are taken
+  nearest first, and rows are read for those values only, widening until no part further out
+  could reach the last score kept. The result is exactly that of ranking the whole window
+  (the tests compare it with an exhaustive ranking).
+
+On SQLite the rating index, or the (maker, part_number) index, is named with ``INDEXED BY``
+(SQLite plans without statistics unless the catalog was analysed).
 
 Hits are ordered by score (descending), then maker, then part number, in code-point order on
 both databases (PostgreSQL sorts with ``COLLATE "C"`` where its database collation is not
