@@ -41,8 +41,7 @@ R_OFF = 1e10  #: ohm, a switch (diode, threshold load) that is off
 R_SHUNT = 1e12  #: ohm, from every node to ground
 R_FUSE_OPEN = 1e14  #: ohm, an open fuse: far above R_OFF, so that it takes the whole voltage
 STEPS_PER_PERIOD = 512
-CHUNK = 128  #: first chunk of steps taken at once (doubles while no event comes)
-CHUNK_MIN, CHUNK_MAX = 16, 512  #: after an event: twice the last stretch between events
+CHUNK = 128  #: first chunk of steps taken at once after an event (doubles while none comes)
 MU_FIRST = 0.05  #: regularisation after a first rejected Newton step
 MU_MAX = 20.0  #: beyond this a plain simulated period is taken instead
 STEP_LIMIT = 1.0  #: largest Newton step of a state, in units of its scale (source peak)
@@ -487,7 +486,6 @@ class Netlist:
         limit = max_events or int(200 * (len(self.switches) + 1) * periods)
         h = self.h
         chunk = CHUNK
-        t_last_event = t
         while t < t_end - 1e-12 * self.period:
             md = self.mode(mode)
             k_left = int(math.floor((t_end - t) / h * (1 + 1e-12)))
@@ -520,6 +518,7 @@ class Netlist:
                 t = t + k * h
                 chunk *= 2
                 continue
+            chunk = CHUNK
             dt = (taus[i + 1] - taus[i]) * frac
             found = self._locate(md, Z[:, i], dt, Z[:, i + 1] if frac == 1.0 else None)
             if found is None:
@@ -550,12 +549,7 @@ class Netlist:
             # non-physical spike of the event instant reaches the recorded waveforms
             settle = self.mode(mode).settle
             z = settle @ z_ev
-            t_event = t + taus[i] + tau
-            # the next chunk: about twice the last stretch between events
-            gap = int((t_event - t_last_event) / h)
-            chunk = min(CHUNK_MAX, max(CHUNK_MIN, 2 * gap))
-            t_last_event = t_event
-            t = t_event + self._settle
+            t = t + taus[i] + tau + self._settle
             if jac:
                 phi = settle @ phi
             events += 1
