@@ -66,7 +66,8 @@ import numpy as np
 
 NGSPICE = os.environ.get("NGSPICE", "ngspice")
 #: One ngspice run that takes longer than this has stalled (a good run takes 0.1-10 s here);
-#: the first option set gets the shorter time, so that a stall costs little.
+#: the first option set gets the shorter time, so that a stall costs little; both grow by
+#: 0.1 ms per maximum time step of the run.
 RUN_TIMEOUT_S = 30
 FIRST_TIMEOUT_S = 12
 
@@ -521,7 +522,8 @@ def simulate(data: dict | Ref, *, no_load: bool = False, settle_periods: int = 4
             text, _ = netlist(ref, no_load=no_load, tstop=n_periods * T, tstart=tstart,
                               tmax=tmax, cap_ic=cap_ic, il_ic=il, options=opts, outfile=out)
             first = opts == options[0]
-            _run(text, tmp, kind, FIRST_TIMEOUT_S if first else RUN_TIMEOUT_S)
+            steps = (n_periods * T - 0.0) / tmax
+            _run(text, tmp, kind, (FIRST_TIMEOUT_S if first else RUN_TIMEOUT_S) + 1e-4 * steps)
             t, cols = _read(out)
             return text, t, cols
 
