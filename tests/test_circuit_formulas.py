@@ -44,10 +44,11 @@ def test_kzk_coefficients():
     assert [F.multiplier_ripple(1.0, 1.0, 1.0, n) for n in (1, 2, 3)] == [1, 3, 6]
     # with I/(fC) = 1 mA / (20 kHz * 10 nF) = 5 V
     assert F.multiplier_drop(1e-3, 20e3, 10e-9, 3) == pytest.approx(110.0)
-    assert F.bridge_ripple(1.0, 50.0, 1e-3) == pytest.approx(F.half_wave_ripple(1.0, 50.0, 1e-3) / 2)
+    half = F.half_wave_ripple(1.0, 50.0, 1e-3)
+    assert F.bridge_ripple(1.0, 50.0, 1e-3) == pytest.approx(half / 2)
 
 
-# --- simulation against the closed forms -----------------------------------------------------------
+# --- simulation against the closed forms ------------------------------------------------------
 def _loaded_ripple(topology: str, current: float, c: float, f: float = 50.0) -> float:
     spec = parse_circuit({
         "topology": topology,

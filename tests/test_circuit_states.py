@@ -12,7 +12,6 @@ import time
 import numpy as np
 import pytest
 
-from partsmatch.circuit import formulas as F
 from partsmatch.circuit.spec import parse_circuit, with_part_values
 from partsmatch.circuit.stress import KEYS, STATES, analyze, simulate_waveforms, steady_state
 
@@ -205,7 +204,8 @@ def test_stiff_corners_converge():
     assert r["solver"]["loaded"]["residual"] <= 1e-5
     assert r["by_state"]["loaded"]["load"]["i_mean"] > 0
     cc = parse_circuit({"topology": "bridge-rectifier",
-                        "source": {"voltage": "24 V", "frequency": "50 Hz", "resistance": "0.5 ohm"},
+                        "source": {"voltage": "24 V", "frequency": "50 Hz",
+                                   "resistance": "0.5 ohm"},
                         "load": {"type": "current", "current": "1 A"},
                         "parts": {"C1": {"capacitance": "4700 uF"}}})
     r = analyze(cc)

@@ -40,7 +40,7 @@ from typing import Any
 
 import numpy as np
 
-from partsmatch.circuit.solver import Netlist, Segment, SteadyState
+from partsmatch.circuit.solver import Netlist, SteadyState
 from partsmatch.errors import SimulationError
 from partsmatch.circuit.spec import CircuitSpec
 from partsmatch.circuit.topologies import Wiring, build_netlist, ideal_dc
@@ -459,5 +459,4 @@ def simulate_waveforms(spec: CircuitSpec, state: str = "loaded", periods: int = 
     return res
 
 
-__all__ = ["analyze", "simulate_waveforms", "steady_state", "cautions", "STATES", "KEYS",
-           "Segment"]
+__all__ = ["analyze", "simulate_waveforms", "steady_state", "cautions", "STATES", "KEYS"]
