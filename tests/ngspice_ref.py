@@ -572,3 +572,37 @@ def simulate(data: dict | Ref, *, no_load: bool = False, settle_periods: int = 4
         wf = {"t": t, **cols}
     return RefResult("no_load" if no_load else "loaded", cur, prev, drift, rounds, ladder[0],
                      version, wall, text, wf, failures)
+
+
+def dump(path: str) -> None:
+    """Write ngspice's steady state of every comparison case to ``path`` (JSON, for the record).
+
+    The tests do not read this file (they run ngspice); it documents what the reference gave,
+    so a change of ngspice version or of a netlist shows up in ``git diff``.
+    """
+    import importlib.util
+    import json
+    from pathlib import Path
+
+    here = Path(__file__).resolve().parent
+    spec = importlib.util.spec_from_file_location("_cases", here / "test_circuit_ngspice.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    out = {"ngspice": ngspice_version(), "options_ladder": list(OPTION_LADDER),
+           "diode_model": DIODE_MODEL, "cases": {}}
+    for name, data in mod.CASES.items():
+        kw = mod.REF_KW.get(name, {})
+        states = ["loaded", "no_load"] if data["load"]["type"] != "none" else ["no_load"]
+        out["cases"][name] = {"circuit": data}
+        for st in states:
+            r = simulate(data, no_load=(st == "no_load"), **kw)
+            out["cases"][name][st] = {"values": r.values, "drift": r.drift, "rounds": r.rounds,
+                                      "options": r.options}
+    Path(path).write_text(json.dumps(out, indent=1, sort_keys=True) + "\n")
+
+
+if __name__ == "__main__":
+    import sys
+
+    dump(sys.argv[1] if len(sys.argv) > 1 else
+         os.path.join(os.path.dirname(os.path.abspath(__file__)), "reference", "ngspice_steady.json"))
