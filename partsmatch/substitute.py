@@ -11,11 +11,10 @@
    capacitor's stress is interpolated linearly between simulations on a capacitance grid of
    :data:`CAP_GRID` (relative step; a value within :data:`GRID_SNAP` of a step of a grid point
    takes that point), so that a catalog of thousands of capacitors costs a handful of
-   simulations. Measured on the 60 Hz demo doubler, a 10 % grid interpolates every steady-state
-   stress within 0.6 % of a direct simulation (tests/test_substitute.py checks 1 %); the
-   switch-on figures are not continuous in C in the solver (a 1 % step of C near the nominal
-   moves the switch-on peak by 1 %), so there the error reaches about 2 % (C1 energy) near a
-   grid point. A candidate that
+   simulations. Measured on the 60 Hz demo doubler, a 10 % grid interpolates every stress of
+   every state within 0.6 % of a direct simulation (tests/test_substitute.py checks 1 %; before
+   the solver's steady-state fix of aabf60e the switch-on state jumped with C and the error
+   reached 2 %). A candidate that
    already fails the capacitance window is judged on the original's stress (it is rejected
    whatever its stress).
 4. Every rule of the slot's kind is evaluated (partsmatch.rules) and the candidates are ranked:
