@@ -14,6 +14,7 @@ the same, only computed once), and Substitutions are cached by circuit, slot and
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import pytest
@@ -427,3 +428,28 @@ def test_worse_parts_where_the_stress_decides(world):
     cont = next(x for x in j.findings if x.rule == "fuse_continuous")
     assert cont.rating == pytest.approx(0.8 * (1 - 0.005 * 20))
     assert (cont.status == "fail") == (cont.stress > cont.rating)
+
+
+def test_a_candidate_the_solver_cannot_settle_does_not_abort_the_ranking(world, policy):
+    """One candidate whose re-simulation fails is judged on the original's stress with a
+    warning; the ranking goes on (replace QR1010 in the bench supply once aborted on the HV
+    diodes, whose 8-18 V drop the solver could not settle in a 42 V circuit)."""
+    import copy
+
+    from partsmatch.errors import SimulationError
+
+    sub = copy.copy(world.sub("oven_doubler_60hz", "D1"))
+    calls = []
+
+    def failing(spec, pol):
+        calls.append(spec)
+        raise SimulationError("no periodic steady state verified (test)")
+
+    sub._analyze, sub._cache = failing, {}
+    slow_drop = dataclasses.replace(world.part("Quillon:QX12550S"), vf=60.0)
+    for _ in range(2):
+        j = sub.judge(slow_drop)
+        f = next(f for f in j.findings if f.rule == "resimulation")
+        assert f.status == "warn" and "test" in f.message
+        assert j.verdict == "caution"   # the twin otherwise accepted: only this warning
+    assert len(calls) == 1              # the failure is cached like a result
