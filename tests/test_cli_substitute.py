@@ -424,3 +424,28 @@ def test_replace_shows_the_shops_cross_references(pm):
     assert x[0]["note"] == "bench-tested 2026"
     code, out, _ = pm("replace", "ORV-12K55S", "--circuit", C60)
     assert "bench-tested 2026" in out
+
+
+def test_policy_missing_file_exit_2(pm, tmp_path):
+    code, _, err = pm("policy", "show", policy=tmp_path / "none.toml")
+    assert code == 2 and "none.toml" in err and "Traceback" not in err
+
+
+def test_shop_policy_in_the_data_directory_is_used(pm, tmp_path, monkeypatch):
+    """A policy.toml in the user's data directory overrides the defaults, and --policy
+    overrides it (partsmatch.rules.policy.load_policy order)."""
+    from partsmatch.catalog.db import user_data_dir
+
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "xdg"))
+    d = user_data_dir()
+    d.mkdir(parents=True)
+    (d / "policy.toml").write_text("safe_voltage = \"30 V\"\nambient = \"35 degC\"\n")
+    code, out, err = pm("policy", "show", "--json")
+    assert code == 0, err
+    vals = json.loads(out)["values"]
+    assert vals["safe_voltage"]["value"] == 30.0 and vals["ambient"]["value"] == 35.0
+    assert vals["safe_voltage"]["origin"] == str(d / "policy.toml")
+    shop = tmp_path / "bench.toml"
+    shop.write_text("safe_voltage = 40\n")
+    vals = json.loads(pm("policy", "show", "--json", policy=shop)[1])["values"]
+    assert vals["safe_voltage"]["value"] == 40.0 and vals["ambient"]["value"] == 35.0
