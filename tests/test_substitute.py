@@ -234,10 +234,9 @@ def test_obviously_right_part_ranks_first(world, circuit, slot, right):
     assert first["verdict"] in ("accept", "caution") and first["in_stock"] > 0
 
 
-@pytest.mark.parametrize("circuit, slot", [(c, s) for c, s, *_ in
-                                           [("oven_doubler_60hz", "C1"),
-                                            ("oven_doubler_60hz", "F1"),
-                                            ("bench_halfwave", "F1")]])
+@pytest.mark.parametrize("circuit, slot", [("oven_doubler_60hz", "C1"),
+                                           ("oven_doubler_60hz", "F1"),
+                                           ("bench_halfwave", "F1")])
 def test_ranking_order_and_report_contract(world, circuit, slot):
     report = world.report(circuit, slot)
     for key in ("slot", "circuit", "policy", "version", "original", "stress", "cautions",
