@@ -83,7 +83,7 @@ def main(argv: list[str] | None = None) -> int:
     print(f"partsmatch steady-state solve vs {version}; medians of {args.repeat} (engine) and "
           f"{args.ngspice_repeat} (ngspice) runs")
     head = (f"{'circuit':34s} {'engine ms':>10s} {'periods':>8s} {'analyze ms':>11s} "
-            f"{'ngspice ms':>11s} {'ratio':>7s} {'load V eng':>11s} {'load V ngs':>11s}")
+            f"{'ngspice ms':>11s} {'ngs/eng':>8s} {'load V eng':>11s} {'load V ngs':>11s}")
     print(head)
     print("-" * len(head))
     for name, data in cases:
