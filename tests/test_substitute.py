@@ -385,17 +385,19 @@ def test_entered_original_replaces_like_the_catalog_one(world, policy):
 
 
 # ---------------------------------------------------------------- both databases
-def test_fuse_replace_same_on_every_database(demo_engine, world, policy):
-    """SQLite and PostgreSQL prefilter and rank alike (the fuse slot: no re-simulation)."""
+@pytest.mark.parametrize("slot, original", [("F1", "LKS-HV5-1000"), ("C1", "BKM-21-0950-HB")])
+def test_replace_same_on_every_database(demo_engine, world, policy, memo_analyze, slot,
+                                        original):
+    """SQLite and PostgreSQL prefilter and rank alike (the analyses are shared via the memo)."""
     from partsmatch.catalog.queries import find_part
     from partsmatch.substitute import replace_part
 
     spec = world.spec("oven_doubler_60hz")
     with Session(demo_engine) as s:
-        orig = find_part(s, "LKS-HV5-1000")
-        rep = replace_part(s, spec, orig, slot="F1", policy=policy, include_rejected=True)
-        stocked = replace_part(s, spec, orig, slot="F1", policy=policy, in_stock=True)
-    ref = world.report("oven_doubler_60hz", "F1")
+        orig = find_part(s, original)
+        rep = replace_part(s, spec, orig, slot=slot, policy=policy, include_rejected=True)
+        stocked = replace_part(s, spec, orig, slot=slot, policy=policy, in_stock=True)
+    ref = world.report("oven_doubler_60hz", slot)
     assert [(c["maker"], c["part_number"], c["verdict"]) for c in rep["candidates"]] == \
         [(c["maker"], c["part_number"], c["verdict"]) for c in ref["candidates"]]
     assert stocked["candidates"] and all(c["in_stock"] > 0 for c in stocked["candidates"])
