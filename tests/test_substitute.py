@@ -123,7 +123,8 @@ TRAPS = [
     # above the 3 kV DC rating (DESIGN.md: a DC rating says nothing of AC service)
     ("Tessaline:TSL-03KD-U95H", "oven_doubler_60hz", "C1", {"cap_dc_only", "cap_voltage_peak"},
      None),
-    ("Tessaline:TSL-03KD-U95H", "oven_doubler_50hz", "C1", {"cap_dc_only"}, None),
+    ("Tessaline:TSL-03KD-U95H", "oven_doubler_50hz", "C1", {"cap_dc_only", "cap_voltage_peak"},
+     None),
     # 6 kV DC only: above every peak, so the AC-service rule ALONE must stop it
     ("Tessaline:TSL-06KD-U95H", "oven_doubler_60hz", "C1", {"cap_dc_only"},
      {"cap_voltage_peak", "cap_voltage_switch_on", "cap_capacitance"}),
