@@ -93,7 +93,7 @@ _MISSING = object()
 #: Largest stock quantity (the database column is a 32-bit integer).
 MAX_QUANTITY = 2**31 - 1
 #: A memo of cell text -> checked value is emptied when it grows past this (constant memory).
-MEMO_LIMIT = 50_000
+MEMO_LIMIT = 10_000
 _TOLERANCES = ("tolerance_minus", "tolerance_plus")
 _RATINGS = tuple((c, u) for c, u in RATING_UNITS.items() if c not in _TOLERANCES)
 _POS = {c: i for i, c in enumerate(PART_COLUMNS)}
@@ -419,6 +419,8 @@ def parse_row(row: dict[str, str]) -> tuple[dict, tuple[str, int, float | None] 
     header = tuple(row)
     parse = _GENERIC.get(header)
     if parse is None:
+        if len(_GENERIC) >= 16:
+            _GENERIC.clear()
         parse = _GENERIC[header] = compile_row_parser(list(header))
     values, stock = parse([row[h] or "" for h in header])
     return dict(zip(PART_COLUMNS, values)), stock
