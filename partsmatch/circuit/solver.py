@@ -42,6 +42,7 @@ R_SHUNT = 1e12  #: ohm, from every node to ground
 R_FUSE_OPEN = 1e14  #: ohm, an open fuse: far above R_OFF, so that it takes the whole voltage
 STEPS_PER_PERIOD = 512
 CHUNK = 128  #: first chunk of steps taken at once after an event (doubles while none comes)
+GRAZING_MARGIN = 1e-3  #: a grazing orbit's closest diode comes this near conduction (x peak)
 MU_FIRST = 0.05  #: regularisation after a first rejected Newton step
 MU_MAX = 20.0  #: beyond this a plain simulated period is taken instead
 STEP_LIMIT = 1.0  #: largest Newton step of a state, in units of its scale (source peak)
@@ -635,9 +636,13 @@ class Netlist:
 
         * the Newton step from the state (the distance to the orbit it predicts, with the
           period's mode sequence) is within ``tol`` of the source peak;
-        * the state is the fixed point of the previous period's mode sequence (a full,
-          unclipped Newton step landed on it) where conduction vanishes: the *grazing* orbit of
-          a circuit with no load and no bleeder, whose diodes barely conduct;
+        * the period has switching events (a state that merely leaks has none), or the state
+          is the fixed point of the previous period's mode sequence (a full, unclipped Newton
+          step landed on it) where conduction vanishes and some diode comes within
+          :data:`GRAZING_MARGIN` of the source peak of conducting: the *grazing* orbit of a
+          circuit with no load and no bleeder. A state left overcharged by a resonant first
+          charge is neither (its diodes stay well off, it only leaks); from such a state the
+          search moves down the leak direction to where a diode starts to conduct;
         * plain simulated periods converge to it (taken where Newton steps overshoot, near
           grazing orbits where the period map is not smooth) with events in the period, and
           the distance estimated as residual / (1 - contraction per period) is within ``tol``.
@@ -677,10 +682,43 @@ class Netlist:
                     dist = math.inf
                 contracting = (run.events > 0 and plain and rho < 0.95
                                and residual / (1 - rho) <= tol)
-                if dist <= tol or newton_landed or contracting:
+                grazing = run.events > 0 or (
+                    newton_landed and self._min_margin(run) <= GRAZING_MARGIN * self.vscale)
+                if dist <= tol or grazing or contracting:
                     return SteadyState(x, run, it, residual, sims)
             if sims >= max_iter:
                 break
+            if run.events == 0 and len(self.switches) and sims + 12 < max_iter:
+                # no switch acts from x (e.g. capacitors left above their orbit by a resonant
+                # first charge, leaking through R_OFF only): the affine solve would discharge
+                # them completely. Move along that direction only to where a diode starts to
+                # conduct (bisection), and take Newton steps from there.
+                A = run.phi[:self.nx, :self.nx]
+                try:
+                    dx = np.linalg.solve(ident - A, f)
+                except np.linalg.LinAlgError:
+                    dx = f
+                big = float(np.max(np.abs(dx) / scale))
+                if np.all(np.isfinite(dx)) and big > tol:
+                    if big > STEP_LIMIT:
+                        dx *= STEP_LIMIT / big
+                    lo, hi, hit = 0.0, 1.0, None
+                    for _ in range(12):
+                        mid = 0.5 * (lo + hi)
+                        r_m, f_m, n_m = evaluate(x + mid * dx)
+                        sims += 1
+                        if r_m is not None and r_m.events == 0:
+                            lo = mid
+                        else:
+                            hi = mid
+                            if r_m is not None:
+                                hit = (mid, r_m, f_m, n_m)
+                    if hit is not None:
+                        mid, run, f, norm = hit
+                        x = x + mid * dx
+                        newton_landed = plain = False
+                        mu = 0.0
+                        continue
             if plain and rho < 0.5:
                 # plain periods converge fast here (a grazing orbit, where the period map is
                 # not smooth and Newton steps overshoot): keep taking them
@@ -737,6 +775,16 @@ class Netlist:
             x, run, f, norm = trial, run_t, f_t, norm_t
         raise SimulationError(f"no periodic steady state verified after {sims} simulated "
                               f"periods (residual {residual:.2g})")
+
+    def _min_margin(self, run: Run) -> float:
+        """Closest approach of an off switch to its turn-on condition over a run (V)."""
+        best = math.inf
+        for seg in run.segments:
+            md = self.mode(seg.mode)
+            off = md.sgn < 0
+            if off.any():
+                best = min(best, float((-(md.G[off] @ seg.Z)).min()))
+        return best
 
     def _scale(self) -> np.ndarray:
         """Typical size of each state: the source peak for voltages, peak / impedance for
