@@ -8,7 +8,7 @@ from partsmatch.units import format_quantity
 
 #: Stress keys per role with their units, in display order.
 STRESS_UNITS = {
-    "capacitor": (("v_peak", "V"), ("v_min", "V"), ("v_mean", "V"), ("v_ac_rms", "V"),
+    "capacitor": (("v_peak", "V"), ("v_min", "V"), ("v_max", "V"), ("v_mean", "V"), ("v_ac_rms", "V"),
                   ("i_rms", "A"), ("energy_j", "J"), ("discharge_s", "s")),
     "diode": (("v_reverse_peak", "V"), ("i_avg", "A"), ("i_peak", "A"), ("i_rms", "A"),
               ("i_surge", "A"), ("i2t_surge", "A2s"), ("surge_s", "s"), ("frequency_hz", "Hz")),

@@ -134,6 +134,8 @@ def _worst(a: Any, b: Any, key: str = "") -> Any:
     if isinstance(a, (int, float)) and not isinstance(a, bool) and isinstance(b, (int, float)):
         if key == "v_min":
             return min(a, b)
+        if key == "v_max":
+            return max(a, b)
         return b if abs(b) > abs(a) else a
     return a
 

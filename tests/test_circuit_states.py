@@ -87,11 +87,14 @@ def _worst(key, values):
         return None
     if key == "v_min":
         return min(values)
+    if key == "v_max":
+        return max(values)
     return max(values, key=abs)
 
 
 def test_worst_case_rules(oven_l_report):
-    # DESIGN.md section 4: largest magnitude; v_min the most negative; v_peak keeps its sign;
+    # DESIGN.md section 4: largest magnitude; v_min the most negative (v_max the most
+    # positive); v_peak keeps its sign;
     # the states map names a state whose own value is the worst
     r = oven_l_report
     for slot, d in r["slots"].items():

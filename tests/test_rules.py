@@ -243,16 +243,20 @@ def test_capacitor_dc_only(policy, v_ac, c_vdc, o_kw, status):
                              policy).status == "fail"   # no voltage rating at all
 
 
-@pytest.mark.parametrize("v_min_cont, v_min_trans, orig_pol, status", [
-    (-500.0, None, False, "fail"),     # the 60 Hz oven C1 reverses to about -0.5 kV (demo README)
-    (-1.5, None, False, "pass"),       # at the 1.5 V limit (from memory)
-    (-1.6, None, False, "fail"),
-    (10.0, -20.0, False, "fail"),      # the switch-on transient reverses it
-    (-500.0, None, True, "warn"),      # the original was polarised too
+@pytest.mark.parametrize("v_min_cont, v_max_cont, v_min_trans, orig_pol, status", [
+    (-500.0, 4400.0, None, False, "fail"),   # a 60 Hz oven C1 swinging about -0.5..+4.4 kV
+    (-1.5, 1000.0, None, False, "pass"),     # at the 1.5 V limit (from memory)
+    (-1.6, 1000.0, None, False, "fail"),
+    (10.0, 300.0, -20.0, False, "fail"),     # the switch-on transient reverses it
+    (-500.0, 4400.0, None, True, "warn"),    # the original was polarised too
+    (-2600.0, -1800.0, None, False, "pass"),  # one sign only (the 30 kHz C1): fit it reversed
+    (-4430.0, 150.0, None, False, "fail"),   # mostly negative but crosses zero by 150 V
 ])
-def test_capacitor_polarity(policy, v_min_cont, v_min_trans, orig_pol, status):
-    trans = {"v_min": v_min_trans} if v_min_trans is not None else {}
-    st = stress("capacitor", {"v_min": v_min_cont}, trans)
+def test_capacitor_polarity(policy, v_min_cont, v_max_cont, v_min_trans, orig_pol, status):
+    # reversal: the voltage goes beyond the polarity limit on both sides (common practice,
+    # no source: a polarised part takes one sign only, fitted either way round)
+    trans = {"v_min": v_min_trans, "v_max": 0.0} if v_min_trans is not None else {}
+    st = stress("capacitor", {"v_min": v_min_cont, "v_max": v_max_cont}, trans)
     f = capacitor.polarity(cap(polarized=orig_pol), cap(polarized=True), st, policy)
     assert f.status == status
     assert capacitor.polarity(cap(), cap(polarized=False), st, policy).status == "pass"

@@ -20,7 +20,8 @@ States:
   source voltage; each value is the worse of the two.
 
 Definitions: a capacitor's ``v_peak`` is its voltage of largest magnitude (signed), ``v_min``
-its most negative voltage, ``v_ac_rms`` the RMS of its voltage less the mean, ``energy_j`` =
+its most negative voltage and ``v_max`` its most positive (together they tell whether the
+voltage reverses, whatever the slot's orientation), ``v_ac_rms`` the RMS of its voltage less the mean, ``energy_j`` =
 C v_peak^2 / 2 and ``discharge_s`` the time its bleeder alone takes from |v_peak| to
 ``policy["safe_voltage"]`` (``None`` without a bleeder). A diode's ``i_surge`` is its largest
 switch-on current, ``i2t_surge`` the integral of i^2 over that pulse and ``surge_s`` the pulse's
@@ -51,7 +52,8 @@ START_FRACTION = 0.9
 
 STATES = ("loaded", "no_load", "switch_on", "high_line")
 KEYS = {
-    "capacitor": ("v_peak", "v_min", "v_mean", "v_ac_rms", "i_rms", "energy_j", "discharge_s"),
+    "capacitor": ("v_peak", "v_min", "v_max", "v_mean", "v_ac_rms", "i_rms", "energy_j",
+                  "discharge_s"),
     "diode": ("v_reverse_peak", "i_avg", "i_peak", "i_rms", "i_surge", "i2t_surge", "surge_s",
               "frequency_hz"),
     "fuse": ("i_rms", "i_peak", "i2t_cycle", "i2t_surge", "v_open_peak", "v_open_rms"),
@@ -137,7 +139,7 @@ def _steady_measures(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: Steady
         d = res["slots"][slot]
         if p.role == "capacitor":
             vm = _mean(t, v)
-            d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_mean=vm,
+            d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_max=float(v.max()), v_mean=vm,
                      v_ac_rms=_rms(t, v - vm), i_rms=_rms(t, i))
             d["energy_j"], d["discharge_s"] = _cap_energy(spec, slot, d["v_peak"], safe)
         elif p.role == "diode":
@@ -216,7 +218,7 @@ def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str
         v, i = out[f"v({el})"], out[f"i({el})"]
         d = res["slots"][slot]
         if p.role == "capacitor":
-            d.update(v_peak=_signed_peak(v), v_min=float(v.min()))
+            d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_max=float(v.max()))
             d["energy_j"], d["discharge_s"] = _cap_energy(spec, slot, d["v_peak"], safe)
         elif p.role == "diode":
             peak, i2t, width = _pulse(t, i)
@@ -240,6 +242,8 @@ def _worse(key: str, a: float | None, b: float | None) -> bool:
         return True
     if key == "v_min":
         return b < a
+    if key == "v_max":
+        return b > a
     return abs(b) > abs(a)
 
 

@@ -182,20 +182,35 @@ def dc_only(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Policy) 
 
 
 def polarity(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Policy) -> Finding:
-    """A polarised part in a slot whose voltage reverses (hard fail)."""
+    """A polarised part in a slot whose voltage reverses (hard fail).
+
+    The voltage reverses when it goes beyond the policy limit on both sides (``v_max`` and
+    ``v_min``, every state including switch-on). A slot whose voltage keeps one sign takes a
+    polarised part fitted the right way round, whatever the sign in the circuit's orientation.
+    """
     basis = policy.entry("polarity_reverse_limit").basis
     if not cand.polarized:
         return Finding("cap_polarity", "pass", None, None, None, "not polarised", basis)
-    lows = [st.continuous.get("v_min"), st.transient.get("v_min")]
-    v_min = min((v for v in lows if v is not None), default=0.0)
     limit = policy["polarity_reverse_limit"]
-    if v_min >= -limit:
-        return Finding("cap_polarity", "pass", v_min, -limit, None,
-                       f"polarised; the slot voltage stays above {fq(-limit, 'V')}", basis, "V")
+    lows = [v for v in (st.continuous.get("v_min"), st.transient.get("v_min")) if v is not None]
+    highs = [v for v in (st.continuous.get("v_max"), st.transient.get("v_max"))
+             if v is not None]
+    v_min = min(lows, default=0.0)
+    v_max = max(highs, default=0.0 if lows else 0.0)
+    if not highs:  # an older stress report without v_max: take the signed peak as the top
+        v_max = max([v for v in (st.continuous.get("v_peak"), st.transient.get("v_peak"))
+                     if v is not None] + [0.0])
+    reverse = min(-v_min, v_max)  # how far the voltage goes against its main sign
+    if reverse <= limit:
+        sign = "+" if abs(v_max) >= abs(v_min) else "-"
+        return Finding("cap_polarity", "pass", -reverse, -limit, None,
+                       f"polarised; the slot voltage keeps one sign (fit with + to the slot's "
+                       f"{'first' if sign == '+' else 'second'} terminal)", basis, "V")
     status = "warn" if orig.polarized else "fail"
-    return Finding("cap_polarity", status, v_min, -limit, None,
-                   f"polarised part in a slot whose voltage reverses to {fq(v_min, 'V')}"
-                   + (" (so was the original)" if orig.polarized else ""), basis, "V")
+    return Finding("cap_polarity", status, -reverse, -limit, None,
+                   f"polarised part in a slot whose voltage reverses (from {fq(v_min, 'V')} to "
+                   f"{fq(v_max, 'V')})" + (" (so was the original)" if orig.polarized else ""),
+                   basis, "V")
 
 
 def ripple(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Policy) -> Finding:

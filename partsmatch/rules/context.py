@@ -21,6 +21,8 @@ def _worse(key: str, a: float | None, b: float | None) -> bool:
         return True
     if key == "v_min":
         return b < a
+    if key == "v_max":
+        return b > a
     return abs(b) > abs(a)
 
 
