@@ -247,7 +247,8 @@ def compile_row_parser(header: list[str], *, null: object = None,
     i_tol, i_tmin, i_tplus = at("tolerance"), at("tolerance_minus"), at("tolerance_plus")
     i_pol, i_char, i_std = at("polarized"), at("characteristic"), at("fuse_standard")
     i_qty, i_loc, i_cost = at("quantity"), at("location"), at("unit_cost")
-    ratings = tuple((where[c], _POS[c], c, u, {}) for c, u in _RATINGS if c in where)
+    ratings = tuple((where[c], _POS[c], {}) for c, _ in _RATINGS if c in where)
+    rating_of = {_POS[c]: (c, u) for c, u in _RATINGS}
     m_maker: dict = {}
     m_kind: dict = {}
     m_diel: dict = {}
@@ -338,19 +339,31 @@ def compile_row_parser(header: list[str], *, null: object = None,
         out[3] = normalize_part_number(pn)[:80]
         desc = cells[i_desc]
         if desc:
-            desc = _free_text(desc, "description", None)
-            if desc is not None:
+            if desc[0] == "'":
+                desc = unescape_cell(desc)
+            desc = desc.strip()
+            if desc:
+                if "\x00" in desc or not desc.isascii():
+                    _check_text(desc, "description")
                 out[4] = desc
         diel = cells[i_diel]
-        diel = memo(m_diel, diel, _free_text, "dielectric", 40) if diel else null
+        if diel:
+            v = m_diel.get(diel, missing)
+            diel = memo(m_diel, diel, _free_text, "dielectric", 40) if v is missing else v
+        else:
+            diel = null
         size = cells[i_size]
-        size = memo(m_size, size, _free_text, "size", 60) if size else null
-        for i, pos, col, unit, table in ratings:
+        if size:
+            v = m_size.get(size, missing)
+            size = memo(m_size, size, _free_text, "size", 60) if v is missing else v
+        else:
+            size = null
+        for i, pos, table in ratings:
             t = cells[i]
             if t:
                 v = table.get(t, missing)
                 if v is missing:
-                    v = _rating(t, col, unit)
+                    v = _rating(t, *rating_of[pos])
                     if v is None:
                         v = null
                     if len(table) >= MEMO_LIMIT:
