@@ -21,9 +21,9 @@ States:
 
 Definitions: a capacitor's ``v_peak`` is its voltage of largest magnitude (signed), ``v_min``
 its most negative voltage and ``v_max`` its most positive (together they tell whether the
-voltage reverses, whatever the slot's orientation), ``v_ac_rms`` the RMS of its voltage less the mean, ``energy_j`` =
-C v_peak^2 / 2 and ``discharge_s`` the time its bleeder alone takes from |v_peak| to
-``policy["safe_voltage"]`` (``None`` without a bleeder). A diode's ``i_surge`` is its largest
+voltage reverses, whatever the slot's orientation), ``v_ac_rms`` the RMS of its voltage less
+the mean, ``energy_j`` = C v_peak^2 / 2 and ``discharge_s`` the time its bleeder alone takes
+from |v_peak| to ``policy["safe_voltage"]`` (``None`` without a bleeder). A diode's ``i_surge`` is its largest
 switch-on current, ``i2t_surge`` the integral of i^2 over that pulse and ``surge_s`` the pulse's
 width; ``frequency_hz`` is its switching frequency (once per source period in all the supported
 topologies). A fuse's ``i2t_cycle`` is the integral of i^2 over one steady period, its
@@ -139,8 +139,8 @@ def _steady_measures(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: Steady
         d = res["slots"][slot]
         if p.role == "capacitor":
             vm = _mean(t, v)
-            d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_max=float(v.max()), v_mean=vm,
-                     v_ac_rms=_rms(t, v - vm), i_rms=_rms(t, i))
+            d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_max=float(v.max()),
+                     v_mean=vm, v_ac_rms=_rms(t, v - vm), i_rms=_rms(t, i))
             d["energy_j"], d["discharge_s"] = _cap_energy(spec, slot, d["v_peak"], safe)
         elif p.role == "diode":
             d.update(v_reverse_peak=max(0.0, float(-v.min())), i_avg=_mean(t, i),

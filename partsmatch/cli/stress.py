@@ -10,8 +10,9 @@ import typer
 
 #: unit key (partsmatch.units) of each stress key
 _UNITS = {
-    "v_peak": "V", "v_min": "V", "v_max": "V", "v_mean": "V", "v_ac_rms": "V", "v_reverse_peak": "V",
-    "v_open_peak": "V", "v_open_rms": "V", "i_rms": "A", "i_avg": "A", "i_peak": "A",
+    "v_peak": "V", "v_min": "V", "v_max": "V", "v_mean": "V", "v_ac_rms": "V",
+    "v_reverse_peak": "V", "v_open_peak": "V", "v_open_rms": "V", "i_rms": "A", "i_avg": "A",
+    "i_peak": "A",
     "i_surge": "A", "i_mean": "A", "energy_j": "J", "discharge_s": "s", "surge_s": "s",
     "i2t_surge": "A2s", "i2t_cycle": "A2s", "frequency_hz": "Hz", "p_mean": "W",
 }
