@@ -19,13 +19,13 @@ States:
 * ``high_line``: ``loaded`` and ``no_load`` again at ``policy["high_line_factor"]`` times the
   source voltage; each value is the worse of the two.
 
-Definitions: a capacitor's ``v_peak`` is its voltage of largest magnitude (signed), ``v_min``
-its most negative voltage and ``v_max`` its most positive (together they tell whether the
-voltage reverses, whatever the slot's orientation), ``v_ac_rms`` the RMS of its voltage less
-the mean, ``energy_j`` = C v_peak^2 / 2 and ``discharge_s`` the time its bleeder alone takes
-from |v_peak| to ``policy["safe_voltage"]`` (``None`` without a bleeder). A diode's
-``i_surge`` is its largest switch-on current, ``i2t_surge`` the integral of i^2 over that pulse
-and ``surge_s`` the pulse's width; ``frequency_hz`` is its switching frequency (once per source period in all the supported
+Definitions: a capacitor's ``v_peak`` is its voltage of largest magnitude (signed), ``v_min`` its
+most negative voltage and ``v_max`` its most positive (together they tell whether the voltage
+reverses, whatever the slot's orientation), ``v_ac_rms`` the RMS of its voltage less the mean,
+``energy_j`` = C v_peak^2 / 2 and ``discharge_s`` the time its bleeder alone takes from |v_peak| to
+``policy["safe_voltage"]`` (``None`` without a bleeder). A diode's ``i_surge`` is its largest
+switch-on current, ``i2t_surge`` the integral of i^2 over that pulse and ``surge_s`` the pulse's
+width; ``frequency_hz`` is its switching frequency (once per source period in all the supported
 topologies). A fuse's ``i2t_cycle`` is the integral of i^2 over one steady period, its
 ``i2t_surge`` the same over the first period after switch-on, and ``v_open_peak``/``v_open_rms``
 the voltage across it over :data:`FUSE_OPEN_PERIODS` periods after it opened at a zero of its
