@@ -635,11 +635,11 @@ def dump(path: str) -> None:
     out = {"ngspice": ngspice_version(), "options_ladder": list(OPTION_LADDER),
            "diode_model": DIODE_MODEL, "cases": {}}
     for name, data in mod.CASES.items():
-        kw = dict(mod.REF_KW.get(name, {}))
-        run = simulate_extrapolated if kw.pop("extrapolate", False) else simulate
         states = ["loaded", "no_load"] if data["load"]["type"] != "none" else ["no_load"]
         out["cases"][name] = {"circuit": data}
         for st in states:
+            kw = mod._ref_kw(name, st == "no_load")
+            run = simulate_extrapolated if kw.pop("extrapolate", False) else simulate
             r = run(data, no_load=(st == "no_load"), **kw)
             out["cases"][name][st] = {"values": r.values, "drift": r.drift, "rounds": r.rounds,
                                       "options": r.options}
