@@ -105,3 +105,12 @@ def test_url_precedence(monkeypatch, tmp_path):
     monkeypatch.delenv("PARTSMATCH_DB")
     monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path))
     assert db.resolve_url(None).endswith("catalog.db")
+
+
+def test_fast_head_revision_agrees_with_alembic(sqlite_url):
+    from alembic.script import ScriptDirectory
+
+    engine = db.make_engine(sqlite_url)
+    alembic_head = ScriptDirectory.from_config(db.alembic_config(engine)).get_current_head()
+    assert db.head_revision(engine) == alembic_head
+    engine.dispose()

@@ -9,6 +9,7 @@ same models and migrations.
 from __future__ import annotations
 
 import os
+import re
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Iterator
@@ -116,8 +117,26 @@ def alembic_config(engine: Engine):
     return cfg
 
 
-def head_revision(engine: Engine) -> str:
-    from alembic.script import ScriptDirectory
+_REV = re.compile(r"^(revision|down_revision)\s*=\s*['\"]?([^'\"\s]*)['\"]?", re.MULTILINE)
+
+
+def head_revision(engine: Engine | None = None) -> str:
+    """The newest revision of the shipped migrations.
+
+    Read from the revision files' ``revision`` / ``down_revision`` lines rather than through
+    Alembic, whose import costs more than the rest of a command's start-up; a history that is
+    not a single line (a branch) is left to Alembic.
+    """
+    revs: dict[str, str | None] = {}
+    for path in (migrations_path() / "versions").glob("*.py"):
+        found = dict(m.groups() for m in _REV.finditer(path.read_text(encoding="utf-8")))
+        if "revision" in found:
+            down = found.get("down_revision")
+            revs[found["revision"]] = None if down in (None, "", "None") else down
+    heads = set(revs) - {d for d in revs.values() if d}
+    if len(heads) == 1:
+        return heads.pop()
+    from alembic.script import ScriptDirectory  # pragma: no cover - branched history
 
     return ScriptDirectory.from_config(alembic_config(engine)).get_current_head()
 
