@@ -36,6 +36,7 @@ from partsmatch import __version__
 from partsmatch.catalog.models import CrossRef, Part
 from partsmatch.catalog.queries import records
 from partsmatch.catalog.records import PartRecord
+from partsmatch.circuit.worst import worse
 from partsmatch.errors import InputError, SimulationError
 from partsmatch.rules import capacitor
 from partsmatch.rules.context import SlotStress, slot_stress
@@ -132,11 +133,7 @@ def _worst(a: Any, b: Any, key: str = "") -> Any:
     if isinstance(a, dict) and isinstance(b, dict):
         return {k: _worst(a[k], b.get(k), k) for k in a}
     if isinstance(a, (int, float)) and not isinstance(a, bool) and isinstance(b, (int, float)):
-        if key == "v_min":
-            return min(a, b)
-        if key == "v_max":
-            return max(a, b)
-        return b if abs(b) > abs(a) else a
+        return b if worse(key, a, b) else a
     return a
 
 

@@ -45,6 +45,7 @@ from partsmatch.circuit.solver import Netlist, SteadyState
 from partsmatch.errors import SimulationError
 from partsmatch.circuit.spec import CircuitSpec
 from partsmatch.circuit.topologies import Wiring, build_netlist, ideal_dc
+from partsmatch.circuit.worst import worse as _worse
 
 #: The steady-state search starts with the capacitors at this fraction of their ideal no-load
 #: voltage: just below the orbit, where the diodes conduct and the Newton step is well informed.
@@ -234,19 +235,6 @@ def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str
 
 
 # --- worst case --------------------------------------------------------------------------------
-def _worse(key: str, a: float | None, b: float | None) -> bool:
-    """True if b is worse than a."""
-    if b is None:
-        return False
-    if a is None:
-        return True
-    if key == "v_min":
-        return b < a
-    if key == "v_max":
-        return b > a
-    return abs(b) > abs(a)
-
-
 def _combine(parts: list[tuple[str, dict[str, Any]]]) -> tuple[dict[str, Any], dict[str, Any]]:
     """Worst over states: (values, states) for a flat dict of keys."""
     values: dict[str, Any] = {}

@@ -10,20 +10,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+from partsmatch.circuit.worst import worse as _worse
+
 STEADY_STATES = ("loaded", "no_load", "high_line")
 TRANSIENT_STATE = "switch_on"
-
-
-def _worse(key: str, a: float | None, b: float | None) -> bool:
-    if b is None:
-        return False
-    if a is None:
-        return True
-    if key == "v_min":
-        return b < a
-    if key == "v_max":
-        return b > a
-    return abs(b) > abs(a)
 
 
 def worst_over(by_state: dict[str, Any], section: str, name: str | None,
