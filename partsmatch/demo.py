@@ -27,7 +27,7 @@ def run_demo(echo: Callable[[str], None] | None = print, limit: int = 5) -> dict
     from partsmatch.circuit.spec import load_circuit
     from partsmatch.report import finding_line, part_summary, stress_lines, verdict_text
     from partsmatch.rules.policy import load_policy
-    from partsmatch.substitute import Judged, Substitution, _report, crossrefs_for, prefilter
+    from partsmatch.substitute import Judged, Substitution, crossrefs_for, prefilter, verdict_report
 
     say = echo or (lambda _s: None)
     with tempfile.TemporaryDirectory(prefix="partsmatch-demo-") as tmp:
@@ -53,7 +53,7 @@ def run_demo(echo: Callable[[str], None] | None = print, limit: int = 5) -> dict
                 say("")
                 judged = sorted((sub.judge(c) for c in prefilter(session, sub)
                                  if c.id != original.id), key=Judged.sort_key)
-                report = _report(sub, [j for j in judged if j.verdict != "reject"][:limit],
+                report = verdict_report(sub, [j for j in judged if j.verdict != "reject"][:limit],
                                  crossrefs_for(session, original))
                 say("Replacements from stock, best first:")
                 say(verdict_text(report).split("\n\n", 1)[1].rsplit("\n\nHIGH VOLTAGE", 1)[0])

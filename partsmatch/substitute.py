@@ -435,8 +435,9 @@ def crossrefs_for(session: Session, original: PartRecord) -> list[dict[str, Any]
     return out
 
 
-def _report(sub: Substitution, judged: list[Judged], xrefs: list[dict[str, Any]]
-            ) -> dict[str, Any]:
+def verdict_report(sub: Substitution, judged: list[Judged], xrefs: list[dict[str, Any]]
+                   ) -> dict[str, Any]:
+    """The verdict JSON of DESIGN.md section 4 for judged candidates of one slot."""
     base_slot = dict(sub.base["slots"][sub.slot])
     return {
         "slot": sub.slot,
@@ -468,7 +469,7 @@ def replace_part(session: Session, spec, original: PartRecord, *, slot: str | No
     listed = len(judged)
     if limit:
         judged = judged[:limit]
-    report = _report(sub, judged, crossrefs_for(session, original))
+    report = verdict_report(sub, judged, crossrefs_for(session, original))
     report["judged"] = {"candidates": len(cands), **counts, "not_shown": listed - len(judged)}
     return report
 
@@ -480,7 +481,7 @@ def check_part(session: Session | None, spec, original: PartRecord, candidate: P
     sub = Substitution(spec, original, slot, policy)
     judged = sub.judge(candidate)
     xrefs = crossrefs_for(session, original) if session is not None else []
-    report = _report(sub, [judged], xrefs)
+    report = verdict_report(sub, [judged], xrefs)
     report["verdict"] = judged.verdict
     return report
 

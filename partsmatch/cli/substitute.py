@@ -59,7 +59,7 @@ def replace(
 
 def _check_one(sessions, spec, policy, original_name, candidate_name, slot, cache=None):
     from partsmatch.catalog.queries import find_part
-    from partsmatch.substitute import Substitution, _report, crossrefs_for, resolve_original
+    from partsmatch.substitute import Substitution, crossrefs_for, resolve_original, verdict_report
 
     original, slot_name = resolve_original(sessions, spec, original_name, None, slot)
     candidate = find_part(sessions, candidate_name)
@@ -69,7 +69,7 @@ def _check_one(sessions, spec, policy, original_name, candidate_name, slot, cach
         cache[key] = Substitution(spec, original, slot_name, policy)
     sub = cache[key]
     judged = sub.judge(candidate)
-    report = _report(sub, [judged], crossrefs_for(sessions, original))
+    report = verdict_report(sub, [judged], crossrefs_for(sessions, original))
     report["verdict"] = judged.verdict
     return report
 
