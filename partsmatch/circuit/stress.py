@@ -24,8 +24,9 @@ most negative voltage and ``v_max`` its most positive (together they tell whethe
 reverses, whatever the slot's orientation), ``v_ac_rms`` the RMS of its voltage less the mean,
 ``energy_j`` = C v_peak^2 / 2 and ``discharge_s`` the time its bleeder alone takes from |v_peak| to
 ``policy["safe_voltage"]`` (``None`` without a bleeder). A diode's ``i_surge`` is its largest
-switch-on current, ``i2t_surge`` the integral of i^2 over that pulse and ``surge_s`` the pulse's
-width; ``frequency_hz`` is its switching frequency (once per source period in all the supported
+switch-on current, ``i2t_surge`` the integral of i^2 summed over its pulses that start within the
+first :data:`SURGE_PERIODS` periods and ``surge_s`` their summed width; ``frequency_hz`` is its
+switching frequency (once per source period in all the supported
 topologies). A fuse's ``i2t_cycle`` is the integral of i^2 over one steady period, its
 ``i2t_surge`` the same over the first period after switch-on, and ``v_open_peak``/``v_open_rms``
 the voltage across it over :data:`FUSE_OPEN_PERIODS` periods after it opened at a zero of its
@@ -63,6 +64,8 @@ LOAD_KEYS = ("v_mean", "v_peak", "i_mean", "p_mean")
 SOURCE_KEYS = ("i_rms",)
 
 SWITCH_ON_PERIODS = 5
+#: A diode's switch-on pulses that start within this many periods are summed into i2t_surge.
+SURGE_PERIODS = 2
 FUSE_OPEN_PERIODS = 3
 PHASES = 8
 
@@ -94,22 +97,30 @@ def _load_vi(out: dict[str, np.ndarray], wiring: Wiring) -> tuple[np.ndarray, np
     return v, i
 
 
-def _pulse(t: np.ndarray, i: np.ndarray) -> tuple[float, float, float]:
-    """Largest forward pulse: (peak, integral of i^2 over it, its width)."""
-    k = int(np.argmax(i))
-    peak = float(i[k])
+def _pulses(t: np.ndarray, i: np.ndarray, t_end: float) -> tuple[float, float, float]:
+    """Forward pulses of a switch-on run: (largest peak, integral of i^2 summed over the pulses
+    that start before ``t_end``, their summed width). The rules compare the sum with IFSM as one
+    pulse of the summed width (the first cycles' pulses add up; issue text, from memory)."""
+    peak = float(i.max()) if len(i) else 0.0
     if peak <= 0:
         return 0.0, 0.0, 0.0
     on = i > max(1e-6 * peak, 2e-9)
-    lo = k
-    while lo > 0 and on[lo - 1]:
-        lo -= 1
-    hi = k
-    while hi < len(i) - 1 and on[hi + 1]:
-        hi += 1
-    lo2, hi2 = max(lo - 1, 0), min(hi + 1, len(i) - 1)  # the crossings bound the pulse
-    seg = slice(lo2, hi2 + 1)
-    return peak, _integral(t[seg], np.clip(i[seg], 0, None) ** 2), float(t[hi2] - t[lo2])
+    i2t = width = 0.0
+    k, n = 0, len(i)
+    while k < n:
+        if not on[k]:
+            k += 1
+            continue
+        lo = k
+        while k < n and on[k]:
+            k += 1
+        lo2, hi2 = max(lo - 1, 0), min(k, n - 1)  # the crossings bound the pulse
+        if t[lo2] > t_end:
+            break
+        seg = slice(lo2, hi2 + 1)
+        i2t += _integral(t[seg], np.clip(i[seg], 0, None) ** 2)
+        width += float(t[hi2] - t[lo2])
+    return peak, i2t, width
 
 
 # --- measures of one state -------------------------------------------------------------------
@@ -222,7 +233,7 @@ def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str
             d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_max=float(v.max()))
             d["energy_j"], d["discharge_s"] = _cap_energy(spec, slot, d["v_peak"], safe)
         elif p.role == "diode":
-            peak, i2t, width = _pulse(t, i)
+            peak, i2t, width = _pulses(t, i, t0 + SURGE_PERIODS * net.period)
             d.update(v_reverse_peak=max(0.0, float(-v.min())), i_surge=peak, i2t_surge=i2t,
                      surge_s=width, frequency_hz=spec.source.frequency)
         else:
