@@ -10,6 +10,7 @@ from __future__ import annotations
 import itertools
 import os
 import uuid
+from contextlib import contextmanager
 
 import pytest
 
@@ -51,6 +52,28 @@ def _drop_pg_database(admin, name: str) -> None:
 
     with admin.connect() as conn:
         conn.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+
+
+@contextmanager
+def module_database(request, tmp_path_factory, label: str):
+    """An engine on a new database at head, for module-scoped fixtures parametrised with
+    ``sqlite`` / ``postgresql`` (the database is dropped afterwards)."""
+    from partsmatch.catalog import db
+
+    name = None
+    if request.param == "sqlite":
+        url = f"sqlite:///{tmp_path_factory.mktemp(label) / 'catalog.db'}"
+    else:
+        admin = request.getfixturevalue("pg_admin")
+        name, url = _new_pg_database(admin)
+    engine = db.make_engine(url)
+    try:
+        db.init(engine)
+        yield engine
+    finally:
+        engine.dispose()
+        if name:
+            _drop_pg_database(request.getfixturevalue("pg_admin"), name)
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.pg)])

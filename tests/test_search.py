@@ -96,21 +96,9 @@ def cat(request, tmp_path_factory):
     """The catalog above on each backend, built once per module (find only reads it)."""
     import conftest
 
-    name = None
-    if request.param == "sqlite":
-        url = f"sqlite:///{tmp_path_factory.mktemp('search') / 'catalog.db'}"
-    else:
-        admin = request.getfixturevalue("pg_admin")
-        name, url = conftest._new_pg_database(admin)
-    engine = db.make_engine(url)
-    try:
-        db.init(engine)
+    with conftest.module_database(request, tmp_path_factory, "search") as engine:
         build_catalog(engine)
         yield engine
-    finally:
-        engine.dispose()
-        if name:
-            conftest._drop_pg_database(request.getfixturevalue("pg_admin"), name)
 
 
 def _find(engine, query, **kw) -> list[Hit]:
@@ -385,21 +373,9 @@ def build_big_catalog(engine, n: int = 3000) -> None:
 def big(request, tmp_path_factory):
     import conftest
 
-    name = None
-    if request.param == "sqlite":
-        url = f"sqlite:///{tmp_path_factory.mktemp('big') / 'catalog.db'}"
-    else:
-        admin = request.getfixturevalue("pg_admin")
-        name, url = conftest._new_pg_database(admin)
-    engine = db.make_engine(url)
-    try:
-        db.init(engine)
+    with conftest.module_database(request, tmp_path_factory, "big") as engine:
         build_big_catalog(engine)
         yield engine
-    finally:
-        engine.dispose()
-        if name:
-            conftest._drop_pg_database(request.getfixturevalue("pg_admin"), name)
 
 
 def _oracle(engine, kv: float, ma: float, maker: str | None, limit: int):
