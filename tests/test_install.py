@@ -43,3 +43,7 @@ def test_wheel_install_runs_from_elsewhere(tmp_path):
                             capture_output=True, text=True, env=env, check=True)
     kinds = {p["kind"] for p in json.loads(listed.stdout)}
     assert kinds == {"capacitor", "diode", "fuse", "resistor"}
+    demo = subprocess.run([str(exe), "demo", "--json"], cwd=elsewhere, capture_output=True,
+                          text=True, env=env)
+    assert demo.returncode == 0, demo.stderr
+    assert json.loads(demo.stdout)["replace"]["candidates"]  # circuits travel with the wheel
