@@ -475,10 +475,18 @@ def replace_part(session: Session, spec, original: PartRecord, *, slot: str | No
 
 
 def check_part(session: Session | None, spec, original: PartRecord, candidate: PartRecord, *,
-               slot: str | None = None, policy: Policy) -> dict[str, Any]:
-    """One candidate against one original in ``spec`` (the verdict JSON with one candidate)."""
+               slot: str | None = None, policy: Policy,
+               cache: dict[tuple[str, str], Substitution] | None = None) -> dict[str, Any]:
+    """One candidate against one original in ``spec`` (the verdict JSON with one candidate).
+
+    ``cache`` keeps the analysed circuit per (original, slot) across calls (``check --batch``).
+    """
     slot = choose_slot(spec, original, slot)
-    sub = Substitution(spec, original, slot, policy)
+    cache = {} if cache is None else cache
+    key = (original.name, slot)
+    if key not in cache:
+        cache[key] = Substitution(spec, original, slot, policy)
+    sub = cache[key]
     judged = sub.judge(candidate)
     xrefs = crossrefs_for(session, original) if session is not None else []
     report = verdict_report(sub, [judged], xrefs)

@@ -16,10 +16,10 @@ from typing import Iterator
 
 from sqlalchemy import Engine, create_engine, event, inspect, text
 from sqlalchemy.exc import SQLAlchemyError
-from sqlalchemy.orm import Session, sessionmaker
+from sqlalchemy.orm import Session
 
 from partsmatch._resources import migrations_path
-from partsmatch.errors import DatabaseError, InputError, SchemaOutdated
+from partsmatch.errors import DatabaseError, SchemaOutdated
 
 BUSY_TIMEOUT_MS = 30_000
 
@@ -84,10 +84,6 @@ def redact(url: str) -> str:
         return make_url(url).render_as_string(hide_password=True)
     except Exception:  # noqa: BLE001 - best effort for a message
         return "<database>"
-
-
-def session_factory(engine: Engine) -> sessionmaker[Session]:
-    return sessionmaker(engine, expire_on_commit=False)
 
 
 @contextmanager
@@ -199,9 +195,3 @@ def init(engine: Engine) -> str:
     """Create a brand-new database at head (or upgrade an existing one); return the revision."""
     upgrade(engine, "head")
     return head_revision(engine)
-
-
-def check_url_is_sqlite_file(url: str) -> Path:
-    if not url.startswith("sqlite:///"):
-        raise InputError(f"not a SQLite file URL: {url}")
-    return Path(url.split("///", 1)[1])

@@ -7,7 +7,7 @@ from typing import Any
 from sqlalchemy import Engine, or_, select
 from sqlalchemy.orm import Session
 
-from partsmatch.catalog.models import Part, Repair
+from partsmatch.catalog.models import Repair
 from partsmatch.catalog.records import PartRecord
 
 
@@ -46,4 +46,4 @@ def _as_dict(r: Repair) -> dict[str, Any]:
             "verdict": r.verdict, "note": r.note}
 
 
-__all__ = ["add_repair", "list_repairs", "Part"]
+__all__ = ["add_repair", "list_repairs"]

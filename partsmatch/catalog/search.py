@@ -547,9 +547,9 @@ def _pn_score(qn: str, q_key: str, pn_norm: str, part_number: str) -> tuple[floa
 
 def _key(s: str) -> str:
     """Upper case without separators, look-alikes not folded."""
-    from partsmatch.catalog.names import _SEPARATORS
+    from partsmatch.catalog.names import strip_separators
 
-    return s.upper().translate(_SEPARATORS)
+    return strip_separators(s)
 
 
 # --------------------------------------------------------------------------- find

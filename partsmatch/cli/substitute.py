@@ -57,21 +57,14 @@ def replace(
         typer.echo(verdict_text(report))
 
 
-def _check_one(sessions, spec, policy, original_name, candidate_name, slot, cache=None):
+def _check_one(session, spec, policy, original_name, candidate_name, slot, cache=None):
     from partsmatch.catalog.queries import find_part
-    from partsmatch.substitute import Substitution, crossrefs_for, resolve_original, verdict_report
+    from partsmatch.substitute import check_part, resolve_original
 
-    original, slot_name = resolve_original(sessions, spec, original_name, None, slot)
-    candidate = find_part(sessions, candidate_name)
-    key = (original.name, slot_name)
-    cache = {} if cache is None else cache
-    if key not in cache:
-        cache[key] = Substitution(spec, original, slot_name, policy)
-    sub = cache[key]
-    judged = sub.judge(candidate)
-    report = verdict_report(sub, [judged], crossrefs_for(sessions, original))
-    report["verdict"] = judged.verdict
-    return report
+    original, slot_name = resolve_original(session, spec, original_name, None, slot)
+    candidate = find_part(session, candidate_name)
+    return check_part(session, spec, original, candidate, slot=slot_name, policy=policy,
+                      cache=cache)
 
 
 def check(
