@@ -485,3 +485,46 @@ def test_cli_import_prints_no_progress_into_a_pipe(cli, tmp_path):
     assert cli("--db", url, "init")[0] == 0
     code, out, err = cli("--db", url, "parts", "import", str(path))
     assert code == 0 and err == "" and "3 rows; added 3 parts" in out
+
+
+def _ledger_disagreements(engine) -> list[tuple]:
+    """Stock rows whose movements do not add up to their quantity (the ledger rule of the
+    stock commands: every change is a movement row; common practice, no source)."""
+    with engine.connect() as conn:
+        return [tuple(r) for r in conn.execute(text(
+            "SELECT s.id, s.quantity, coalesce(sum(m.delta), 0), count(m.id) FROM stock s "
+            "LEFT JOIN stock_movements m ON m.part_id = s.part_id AND m.location = s.location "
+            "GROUP BY s.id, s.quantity HAVING s.quantity <> coalesce(sum(m.delta), 0) "
+            "OR count(m.id) = 0"))]
+
+
+def test_batch_mixing_new_and_known_parts(engine, monkeypatch):
+    """A batch whose parts are partly in the catalog already: on SQLite the batch is first
+    written optimistically, then sorted out by one look-up; later all-new batches go back to
+    the fast path. Counts, stock, ids and the movement ledger must come out as on PostgreSQL."""
+    monkeypatch.setattr(cio, "BATCH", 3)
+    import_csv(engine, stream=io.StringIO(_BK_HEADER + "\nK-1,Quillmoor,diode,,12 kV,,9,A1\n"),
+               name="k.csv")
+    rows = ["N-1,Quillmoor,diode,,,,2,A1", "K-1,Quillmoor,diode,,15 kV,,4,A1",
+            "N-2,Quillmoor,diode,,,,1,B1",
+            "N-3,Quillmoor,diode,,,,1,A1", "N-1,Quillmoor,diode,,,,3,B1",
+            "K-1,Quillmoor,diode,,15 kV,,2,C1",
+            "N-4,Quillmoor,diode,,,,1,A1", "N-5,Quillmoor,diode,,,,6,A1",
+            "N-6,Quillmoor,diode,,,,7,A2"]
+    data = _BK_HEADER + "\n" + "\n".join(rows) + "\n"
+    with pytest.raises(InputError) as exc:  # without --update the known part is an error
+        import_csv(engine, stream=io.StringIO(data), name="m.csv")
+    assert str(exc.value).startswith("m.csv:3: part Quillmoor:K-1 is already in the catalog")
+    rep = import_csv(engine, stream=io.StringIO(data), name="m.csv", update=True)
+    assert (rep.rows, rep.parts_added, rep.parts_updated, rep.stock_rows) == (9, 6, 1, 8)
+    with engine.connect() as conn:
+        got = conn.execute(text(
+            "SELECT p.part_number, s.location, s.quantity, p.vrrm FROM stock s JOIN parts p "
+            "ON p.id = s.part_id ORDER BY 1, 2")).all()
+        n_parts = conn.execute(text("SELECT count(*) FROM parts")).scalar()
+    assert [tuple(r) for r in got] == [
+        ("K-1", "A1", 4, 15e3), ("K-1", "C1", 2, 15e3), ("N-1", "A1", 2, None),
+        ("N-1", "B1", 3, None), ("N-2", "B1", 1, None), ("N-3", "A1", 1, None),
+        ("N-4", "A1", 1, None), ("N-5", "A1", 6, None), ("N-6", "A2", 7, None)]
+    assert n_parts == 7
+    assert _ledger_disagreements(engine) == []

@@ -669,7 +669,11 @@ class _Import:
         self.cur = None
         self.cache_size = None
         self.dropped: list[tuple[str, str]] = []
-        self.max_part = self.max_stock = self.next_id = 0
+        self.max_part = self.max_stock = self.next_id = self.next_stock = 0
+        #: SQLite: insert a batch's parts first and look up only when one was already there
+        #: (see :meth:`flush`); off after a batch that met a known part, on again after a
+        #: batch whose look-up found none.
+        self.optimistic = self.sqlite
         when = DateTime(timezone=True).dialect_impl(conn.dialect)
         self._when = when.bind_processor(conn.dialect) or (lambda v: v)
         ph = self.ph
@@ -678,6 +682,13 @@ class _Import:
                  for c in PART_COLUMNS]
         self.sql_part = (f"INSERT INTO parts (id, {cols}, created_at) VALUES "
                          f"({ph}, {', '.join(marks)}, {ph})")
+        self.sql_part_new = (f"{self.sql_part} ON CONFLICT (maker, part_number) DO NOTHING")
+        self.sql_stock_ids = ("INSERT INTO stock (id, part_id, location, quantity, unit_cost, "
+                              f"updated_at) VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph})")
+        self.sql_move_of_stock = ("INSERT INTO stock_movements (part_id, location, delta, "
+                                  f"quantity_after, note, at) SELECT part_id, location, quantity, "
+                                  f"quantity, {ph}, updated_at FROM stock WHERE id >= {ph} "
+                                  f"AND id < {ph} ORDER BY id")
         self.sql_stock = ("INSERT INTO stock (part_id, location, quantity, unit_cost, updated_at) "
                           f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph})")
         self.sql_move = ("INSERT INTO stock_movements (part_id, location, delta, quantity_after, "
@@ -723,6 +734,7 @@ class _Import:
         cur.execute("SELECT max(id) FROM stock")
         self.max_stock = cur.fetchone()[0] or 0
         self.next_id = self.max_part + 1
+        self.next_stock = self.max_stock + 1
 
     def _drop_indexes(self) -> None:
         """Drop the secondary (non-unique, explicitly created) indexes of the written tables."""
@@ -828,9 +840,32 @@ class _Import:
         return {(pid, loc): (sid, qty) for sid, pid, loc, qty in self.cur.fetchall()}
 
     def flush(self, batch, first) -> None:
+        """Write one batch: its new parts, its updates and its stock.
+
+        On SQLite a batch's parts first go in with ``ON CONFLICT DO NOTHING``; when every one
+        went in (the usual case: new parts), no look-up is needed at all. When some were already
+        there, one look-up sorts the batch's keys into the rows just written (found under the id
+        given them) and the known parts, which are then treated as below (an error without
+        ``update``, compared, updated); the ids given to the known ones stay unused.
+        """
         name, report = self.name, self.report
         report.rows += len(batch)
+        now = self._when(utcnow())
+        mine: dict[tuple[str, str], int] = {}  # parts this batch has just written
+        if self.optimistic:
+            keys = list(first)
+            new_ids = self._ids(len(keys))
+            self.cur.executemany(self.sql_part_new, [
+                (pid, *values, now) for pid, (_, values) in zip(new_ids, first.values())])
+            if self.cur.rowcount == len(keys):
+                report.parts_added += len(keys)
+                self._flush_stock(batch, dict(zip(keys, new_ids)), set(), set(), now)
+                return
+            self.optimistic = False
+            mine = dict(zip(keys, new_ids))
         existing = self._find(list(first))
+        if self.sqlite and not mine and not existing:
+            self.optimistic = True
         ids: dict[tuple[str, str], int] = {}
         seen: set[int] = set()  # parts in the catalog before this batch
         preexisting: set[int] = set()  # ... and before this import
@@ -842,6 +877,9 @@ class _Import:
                 continue
             pid = old[0]
             ids[key] = pid
+            if mine.get(key) == pid:
+                report.parts_added += 1
+                continue
             seen.add(pid)
             col = _differs(self._from_db(old[1:]), values)
             if pid <= self.max_part:
@@ -856,7 +894,6 @@ class _Import:
             elif col:
                 raise InputError("differs from an earlier row of the same part", file=name,
                                  line=line, column=col)
-        now = self._when(utcnow())
         if new:
             new_ids = self._ids(len(new))
             self._insert(self.sql_part,
@@ -897,10 +934,20 @@ class _Import:
         note = self.note
         if not have:  # every (part, location) is new: the usual case, in bulk
             items = wanted.items()
-            self._insert(self.sql_stock, [(pid, loc, q, c, now)
-                                                  for (pid, loc), (q, c, _) in items])
-            self._insert(self.sql_move, [(pid, loc, q, q, note, now)
-                                                 for (pid, loc), (q, _, _) in items])
+            if self.sqlite:
+                # the stock rows get their ids here (the import holds the write lock), and
+                # their movement rows are copied from them by the database in one statement
+                first_id = self.next_stock
+                self.next_stock += len(wanted)
+                self.cur.executemany(self.sql_stock_ids, [
+                    (sid, pid, loc, q, c, now)
+                    for sid, ((pid, loc), (q, c, _)) in enumerate(items, first_id)])
+                self.cur.execute(self.sql_move_of_stock, (note, first_id, self.next_stock))
+            else:
+                self._insert(self.sql_stock, [(pid, loc, q, c, now)
+                                              for (pid, loc), (q, c, _) in items])
+                self._insert(self.sql_move, [(pid, loc, q, q, note, now)
+                                             for (pid, loc), (q, _, _) in items])
             self.report.stock_rows += len(wanted)
             return
         inserts, updates, moves = [], [], []
@@ -921,7 +968,13 @@ class _Import:
             if new_qty != old_qty:
                 moves.append((pid, loc, new_qty - old_qty, new_qty, note, now))
         if inserts:
-            self._insert(self.sql_stock, inserts)
+            if self.sqlite:  # ids from the import's own count (see the bulk case above)
+                first_id = self.next_stock
+                self.next_stock += len(inserts)
+                self.cur.executemany(self.sql_stock_ids,
+                                     [(sid, *row) for sid, row in enumerate(inserts, first_id)])
+            else:
+                self._insert(self.sql_stock, inserts)
         if updates:
             s = Stock.__table__
             keep_cost = [u for u in updates if u["b_cost"] is None]
