@@ -415,3 +415,15 @@ def _oracle(engine, kv: float, ma: float, maker: str | None, limit: int):
 def test_big_catalog_ranking_matches_an_exhaustive_oracle(big, query, kv, ma, maker, limit):
     got = [(h.part.part_number, h.score) for h in _find(big, query, limit=limit)]
     assert got == _oracle(big, kv, ma, maker, limit)
+
+
+@pytest.mark.parametrize("query", ["KTR/5O81/OA", "0.95uF 2100VAC", "T 2A 250V",
+                                   "12 kV 350 mA diode", "Pellanbrook", "HV cartridge fuse"])
+def test_a_core_connection_finds_what_a_session_finds(cat, query):
+    """``partsmatch find`` reads through a Core connection (no ORM at start-up); the library
+    takes a session too. Both give the same hits, scores and reasons."""
+    with cat.connect() as conn:
+        core = find(conn, query, limit=10)
+    orm = _find(cat, query, limit=10)
+    assert [h.to_dict() for h in core] == [h.to_dict() for h in orm]
+    assert core, query

@@ -57,3 +57,23 @@ def test_every_table_command_offers_json():
         if not any("--json" in p.opts for p in cmd.params):
             lacking.append(" ".join(path))
     assert lacking == []
+
+
+def test_find_runs_without_the_orm(tmp_path):
+    """``partsmatch find`` reads through Core tables: it neither imports the ORM (a third of
+    its start-up) nor the heavy modules, on a real catalog with a spec-style and a part-number
+    query (the part-number query loads rapidfuzz, which is light)."""
+    url = f"sqlite:///{tmp_path / 'c.db'}"
+    from partsmatch.cli.main import run
+
+    assert run(["--db", url, "init", "--demo"]) == 0
+    for query in ("0.95uF 2100VAC", "hvr-1o2"):
+        probe = ("import sys\nfrom partsmatch.cli.main import run\n"
+                 f"code = run(['--db', {url!r}, 'find', {query!r}])\n"
+                 "print('CODE:', code)\n"
+                 f"print('LOADED:' + ','.join(m for m in {('sqlalchemy.orm', *HEAVY)!r} "
+                 "if m in sys.modules))")
+        out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
+                             check=True)
+        lines = out.stdout.splitlines()
+        assert lines[-2] == "CODE: 0" and lines[-1] == "LOADED:", out.stdout[-2000:]

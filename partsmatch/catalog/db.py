@@ -12,14 +12,16 @@ import os
 import re
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Iterator
+from typing import TYPE_CHECKING, Iterator
 
 from sqlalchemy import Engine, create_engine, event, inspect, text
 from sqlalchemy.exc import SQLAlchemyError
-from sqlalchemy.orm import Session
 
 from partsmatch._resources import migrations_path
 from partsmatch.errors import DatabaseError, SchemaOutdated
+
+if TYPE_CHECKING:
+    from sqlalchemy.orm import Session
 
 BUSY_TIMEOUT_MS = 30_000
 
@@ -89,6 +91,8 @@ def redact(url: str) -> str:
 @contextmanager
 def session_scope(engine: Engine) -> Iterator[Session]:
     """One transaction: committed on success, rolled back on any error."""
+    from sqlalchemy.orm import Session  # the ORM only where a command writes
+
     session = Session(engine, expire_on_commit=False)
     try:
         yield session

@@ -3,38 +3,46 @@
 from __future__ import annotations
 
 from collections import defaultdict
-from typing import Iterable
+from typing import TYPE_CHECKING, Any, Iterable
 
 from sqlalchemy import func, select
-from sqlalchemy.orm import Session
 
-from partsmatch.catalog.models import Part, Stock
 from partsmatch.catalog.names import normalize_part_number
 from partsmatch.catalog.records import PartRecord, StockLine, record_from_row
+from partsmatch.catalog.tables import parts, stock
 from partsmatch.errors import PartNotFound
 
+if TYPE_CHECKING:
+    from sqlalchemy import Connection
+    from sqlalchemy.orm import Session
 
-def _stock_for(session: Session, ids: Iterable[int]) -> dict[int, tuple[StockLine, ...]]:
+    #: Reading needs Core statements only: an ORM session or a Core connection will do.
+    Reader = Session | Connection
+
+P, S = parts.c, stock.c
+
+
+def _stock_for(session: Reader, ids: Iterable[int]) -> dict[int, tuple[StockLine, ...]]:
     ids = list(ids)
     out: dict[int, list[StockLine]] = defaultdict(list)
     for chunk in range(0, len(ids), 900):
         rows = session.execute(
-            select(Stock.part_id, Stock.location, Stock.quantity, Stock.unit_cost)
-            .where(Stock.part_id.in_(ids[chunk:chunk + 900]))
-            .order_by(Stock.part_id, Stock.location)
+            select(S.part_id, S.location, S.quantity, S.unit_cost)
+            .where(S.part_id.in_(ids[chunk:chunk + 900]))
+            .order_by(S.part_id, S.location)
         )
         for pid, loc, qty, cost in rows:
             out[pid].append(StockLine(loc, qty, cost))
     return {k: tuple(v) for k, v in out.items()}
 
 
-def records(session: Session, parts: list[Part]) -> list[PartRecord]:
-    """ORM parts -> records with their stock lines."""
-    stock = _stock_for(session, [p.id for p in parts])
-    return [record_from_row(p, stock.get(p.id, ())) for p in parts]
+def records(session: Reader, rows: list[Any]) -> list[PartRecord]:
+    """Parts (rows of ``parts`` or ORM ``Part`` objects) -> records with their stock lines."""
+    lines = _stock_for(session, [p.id for p in rows])
+    return [record_from_row(p, lines.get(p.id, ())) for p in rows]
 
 
-def find_part(session: Session, name: str) -> PartRecord:
+def find_part(session: Reader, name: str) -> PartRecord:
     """The part named ``PART`` or ``MAKER:PART``.
 
     The part number is compared exactly first, then in normal form (case, separators and
@@ -44,15 +52,15 @@ def find_part(session: Session, name: str) -> PartRecord:
     pn = name.strip()
     if ":" in pn:
         maker, pn = (s.strip() for s in pn.split(":", 1))
-    stmt = select(Part).where(Part.part_number == pn)
+    stmt = select(parts).where(P.part_number == pn)
     if maker:
-        stmt = stmt.where(func.lower(Part.maker) == maker.lower())
-    hits = list(session.scalars(stmt.order_by(Part.maker)))
+        stmt = stmt.where(func.lower(P.maker) == maker.lower())
+    hits = list(session.execute(stmt.order_by(P.maker)))
     if not hits:
-        stmt = select(Part).where(Part.pn_norm == normalize_part_number(pn))
+        stmt = select(parts).where(P.pn_norm == normalize_part_number(pn))
         if maker:
-            stmt = stmt.where(func.lower(Part.maker) == maker.lower())
-        hits = list(session.scalars(stmt.order_by(Part.maker, Part.part_number)))
+            stmt = stmt.where(func.lower(P.maker) == maker.lower())
+        hits = list(session.execute(stmt.order_by(P.maker, P.part_number)))
     if not hits:
         raise PartNotFound(f"no part {name!r} in the catalog (try `partsmatch find`)", value=name)
     if len(hits) > 1:
@@ -62,17 +70,17 @@ def find_part(session: Session, name: str) -> PartRecord:
     return records(session, hits)[0]
 
 
-def list_parts(session: Session, kind: str | None = None, limit: int | None = None,
+def list_parts(session: Reader, kind: str | None = None, limit: int | None = None,
                offset: int = 0) -> list[PartRecord]:
-    stmt = select(Part).order_by(Part.kind, Part.maker, Part.part_number)
+    stmt = select(parts).order_by(P.kind, P.maker, P.part_number)
     if kind:
-        stmt = stmt.where(Part.kind == kind)
+        stmt = stmt.where(P.kind == kind)
     if limit:
         stmt = stmt.limit(limit)
     if offset:
         stmt = stmt.offset(offset)
-    return records(session, list(session.scalars(stmt)))
+    return records(session, list(session.execute(stmt)))
 
 
-def count_parts(session: Session) -> int:
-    return session.scalar(select(func.count()).select_from(Part)) or 0
+def count_parts(session: Reader) -> int:
+    return session.scalar(select(func.count()).select_from(parts)) or 0

@@ -93,16 +93,25 @@ import math
 import re
 import weakref
 from dataclasses import dataclass, field
-from typing import Any, Iterable, Sequence
+from typing import TYPE_CHECKING, Any, Iterable, Sequence
 
 from sqlalchemy import and_, case, event, exists, func, literal, or_, select, text
 from sqlalchemy.exc import SQLAlchemyError
-from sqlalchemy.orm import Session
 
-from partsmatch.catalog.models import KINDS, Part, Stock
+from partsmatch.catalog.tables import KINDS, parts, stock
 from partsmatch.catalog.names import normalize_part_number
 from partsmatch.catalog.records import PartRecord
 from partsmatch.errors import DatabaseError, InputError, PartsmatchError
+
+if TYPE_CHECKING:
+    from sqlalchemy import Connection
+    from sqlalchemy.orm import Session
+
+    #: What the lookup reads through: an ORM session or a Core connection.
+    Reader = Session | Connection
+
+#: The columns of the tables the lookup reads (Core: the lookup needs no ORM).
+P, S = parts.c, stock.c
 
 #: Longest query accepted (characters, after collapsing whitespace).
 MAX_QUERY = 200
@@ -168,10 +177,9 @@ class _Backend:
 _BACKENDS: "weakref.WeakKeyDictionary[Any, _Backend]" = weakref.WeakKeyDictionary()
 
 
-def _backend(session: Session) -> _Backend:
+def _backend(session: Reader) -> _Backend:
     """What the database offers, detected once per engine."""
-    bind = session.get_bind()
-    engine = getattr(bind, "engine", bind)
+    engine = _engine_of(session)
     known = _BACKENDS.get(engine)
     if known is not None:
         return known
@@ -185,10 +193,9 @@ def _backend(session: Session) -> _Backend:
             "SELECT 1 FROM pg_indexes WHERE indexname = 'ix_parts_pn_norm_trgm'")).first() is not None
     maker_index = None
     if dialect == "sqlite":
-        try:
+        try:  # a failed SELECT leaves a SQLite transaction as it was
             session.execute(text("SELECT ln(2.0)"))
         except SQLAlchemyError:
-            session.rollback()
             has_ln = False
         # a UNIQUE constraint is an automatic index on SQLite, named by SQLite
         for (name,) in session.execute(text(
@@ -205,11 +212,20 @@ def _backend(session: Session) -> _Backend:
     return info
 
 
-def _ensure_ln(session: Session, be: _Backend) -> None:
+def _engine_of(session: Reader):
+    """The engine behind a session or a connection."""
+    if hasattr(session, "get_bind"):  # an ORM session
+        bind = session.get_bind()
+        return getattr(bind, "engine", bind)
+    return session.engine
+
+
+def _ensure_ln(session: Reader, be: _Backend) -> None:
     """Register a Python ``ln`` on a SQLite build without math functions."""
     if be.has_ln or be.dialect != "sqlite":
         return
-    raw = session.connection().connection.driver_connection
+    conn = session.connection() if hasattr(session, "get_bind") else session
+    raw = conn.connection.driver_connection
     raw.create_function("ln", 1, _py_ln, deterministic=True)
 
 
@@ -241,6 +257,7 @@ class _Query:
     makers: list[str] = field(default_factory=list)            # catalog makers matched
     desc_words: list[str] = field(default_factory=list)
     maker_filter: list[str] | None = None                      # from MAKER:PART
+    catalog_makers: list[str] | None = None                    # read once, when needed
 
 
 def _clean(query: object) -> str:
@@ -308,12 +325,11 @@ def _parse(text_: str) -> _Query:
 # --------------------------------------------------------------------------- makers
 
 
-def _catalog_makers(session: Session) -> list[str]:
+def _catalog_makers(session: Reader, q: _Query) -> list[str]:
     """Every distinct maker, by an index skip-scan (one seek per maker, not a table scan);
-    read once per :func:`find` call."""
-    cached = session.info.get("_pm_find_makers")
-    if cached is not None:
-        return cached
+    read once per :func:`find` call (kept on its query)."""
+    if q.catalog_makers is not None:
+        return q.catalog_makers
     rows = session.execute(text(
         "WITH RECURSIVE m(maker) AS ("
         " SELECT min(maker) FROM parts"
@@ -321,9 +337,8 @@ def _catalog_makers(session: Session) -> list[str]:
         " SELECT (SELECT min(p.maker) FROM parts p WHERE p.maker > m.maker)"
         " FROM m WHERE m.maker IS NOT NULL)"
         f" SELECT maker FROM m WHERE maker IS NOT NULL LIMIT {MAX_MAKERS}"))
-    makers = [r[0] for r in rows]
-    session.info["_pm_find_makers"] = makers
-    return makers
+    q.catalog_makers = [r[0] for r in rows]
+    return q.catalog_makers
 
 
 def _match_makers(q: _Query, makers: list[str]) -> None:
@@ -487,10 +502,10 @@ def _tolerance_penalty(tm: float | None, tp: float | None, asked: float) -> floa
 
 
 def _tolerance_sql(asked: float):
-    worst = case((Part.tolerance_plus > Part.tolerance_minus, Part.tolerance_plus),
-                 else_=Part.tolerance_minus)
+    worst = case((P.tolerance_plus > P.tolerance_minus, P.tolerance_plus),
+                 else_=P.tolerance_minus)
     return case(
-        (or_(Part.tolerance_minus.is_(None), Part.tolerance_plus.is_(None)), literal(5.0)),
+        (or_(P.tolerance_minus.is_(None), P.tolerance_plus.is_(None)), literal(5.0)),
         (worst > asked, literal(2.0) * (worst - asked)),
         else_=literal(0.0))
 
@@ -555,7 +570,7 @@ def _key(s: str) -> str:
 # --------------------------------------------------------------------------- find
 
 
-def find(session: Session, query: str, kind: str | None = None, in_stock: bool = False,
+def find(session: Reader, query: str, kind: str | None = None, in_stock: bool = False,
          limit: int = 20) -> list[Hit]:
     """Parts matching ``query``, best first (see the module docstring for the method).
 
@@ -607,28 +622,27 @@ class _Cand:
             self.how.append(how)
 
 
-def _find(session: Session, text_: str, kind: str | None, in_stock: bool,
+def _find(session: Reader, text_: str, kind: str | None, in_stock: bool,
           limit: int) -> list[Hit]:
-    session.info.pop("_pm_find_makers", None)
     be = _backend(session)
     q = _parse(text_)
     if ":" in text_:
         left, right = (s.strip() for s in text_.split(":", 1))
         if left and right:
-            makers = [m for m in _catalog_makers(session) if m.casefold() == left.casefold()]
+            makers = [m for m in _catalog_makers(session, q) if m.casefold() == left.casefold()]
             if makers:
                 q.maker_filter = makers
                 q.pn_texts = [n for n in [_norm(right)] if len(n) >= 2]
     if q.words:
-        _match_makers(q, _catalog_makers(session))
+        _match_makers(q, _catalog_makers(session, q))
 
     filters = []
     if kind:
-        filters.append(Part.kind == kind)
+        filters.append(P.kind == kind)
     if in_stock:
-        filters.append(exists().where(Stock.part_id == Part.id, Stock.quantity > 0))
+        filters.append(exists().where(S.part_id == P.id, S.quantity > 0))
     if q.maker_filter:
-        filters.append(Part.maker.in_(q.maker_filter))
+        filters.append(P.maker.in_(q.maker_filter))
 
     cands: dict[int, _Cand] = {}
     best_pn = 0.0
@@ -669,24 +683,24 @@ def _find(session: Session, text_: str, kind: str | None, in_stock: bool,
                 tuple(c.how)) for pid, c in ranked if pid in records]
 
 
-def _records(session: Session, ids: Sequence[int]) -> dict[int, PartRecord]:
+def _records(session: Reader, ids: Sequence[int]) -> dict[int, PartRecord]:
     from partsmatch.catalog.queries import records
 
-    parts = list(session.scalars(select(Part).where(Part.id.in_(list(ids)))))
-    return {r.id: r for r in records(session, parts)}  # type: ignore[misc]
+    rows = list(session.execute(select(parts).where(P.id.in_(list(ids)))))
+    return {r.id: r for r in records(session, rows)}  # type: ignore[misc]
 
 
-_PN_COLS = (Part.id, Part.pn_norm, Part.maker, Part.part_number)
+_PN_COLS = (P.id, P.pn_norm, P.maker, P.part_number)
 
 
-def _pn_candidates(session: Session, be: _Backend, qn: str, filters: list) -> list[tuple]:
+def _pn_candidates(session: Reader, be: _Backend, qn: str, filters: list) -> list[tuple]:
     """Steps 1-3 of the part-number reading: exact, one edit away, sorted-order neighbours."""
     rows: dict[int, tuple] = {}
     probes = [qn]
     if EDIT_MIN <= len(qn) <= EDIT_MAX:
         probes += sorted(_edits1(qn))
     for i in range(0, len(probes), 500):
-        stmt = select(*_PN_COLS).where(Part.pn_norm.in_(probes[i:i + 500]), *filters)
+        stmt = select(*_PN_COLS).where(P.pn_norm.in_(probes[i:i + 500]), *filters)
         for r in session.execute(stmt):
             rows[r[0]] = tuple(r)
     prefix = qn[:max(min(len(qn), 3), len(qn) - 4)]
@@ -698,15 +712,15 @@ def _pn_candidates(session: Session, be: _Backend, qn: str, filters: list) -> li
 def _prefix_filter(be: _Backend, prefix: str):
     if be.byte_order:
         upper = _next_prefix(prefix)
-        cond = Part.pn_norm >= prefix
-        return and_(cond, Part.pn_norm < upper) if upper is not None else cond
+        cond = P.pn_norm >= prefix
+        return and_(cond, P.pn_norm < upper) if upper is not None else cond
     esc = prefix.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
-    return Part.pn_norm.like(esc + "%", escape="\\")
+    return P.pn_norm.like(esc + "%", escape="\\")
 
 
-def _neighbours(session: Session, be: _Backend, qn: str, prefix: str, filters: list) -> list[tuple]:
+def _neighbours(session: Reader, be: _Backend, qn: str, prefix: str, filters: list) -> list[tuple]:
     """Part numbers sharing ``prefix`` next to ``qn`` in code-point order, both sides."""
-    col = _c(Part.pn_norm, be)
+    col = _c(P.pn_norm, be)
     pre = _prefix_filter(be, prefix)
     after = (select(*_PN_COLS).where(pre, col >= qn, *filters)
              .order_by(col).limit(NEIGHBOURS))
@@ -719,25 +733,25 @@ def _neighbours(session: Session, be: _Backend, qn: str, prefix: str, filters: l
     return out
 
 
-def _complete_ties(session: Session, got: list[tuple], cap: int, filters: list) -> list[tuple]:
+def _complete_ties(session: Reader, got: list[tuple], cap: int, filters: list) -> list[tuple]:
     """A LIMIT may cut a run of equal normal forms: fetch the whole run at the boundary, so that
     the set does not depend on the order a database returns equal keys in."""
     if len(got) < cap:
         return got
     last = got[-1][1]
     kept = [r for r in got if r[1] != last]
-    stmt = select(*_PN_COLS).where(Part.pn_norm == last, *filters).limit(1000)
+    stmt = select(*_PN_COLS).where(P.pn_norm == last, *filters).limit(1000)
     return kept + [tuple(r) for r in session.execute(stmt)]
 
 
-def _pn_contains(session: Session, be: _Backend, qn: str, filters: list) -> list[tuple]:
+def _pn_contains(session: Reader, be: _Backend, qn: str, filters: list) -> list[tuple]:
     """Step 4: part numbers containing ``qn`` (trigram index on PostgreSQL; index walk on SQLite)."""
-    col = _c(Part.pn_norm, be)
+    col = _c(P.pn_norm, be)
     if be.dialect == "sqlite":
-        cond = func.instr(Part.pn_norm, qn) > 0
+        cond = func.instr(P.pn_norm, qn) > 0
     else:
         esc = qn.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
-        cond = Part.pn_norm.like(f"%{esc}%", escape="\\")
+        cond = P.pn_norm.like(f"%{esc}%", escape="\\")
     stmt = select(*_PN_COLS).where(cond, *filters).order_by(col).limit(SUBSTRING_ROWS)
     got = [tuple(r) for r in session.execute(stmt)]
     return _complete_ties(session, got, SUBSTRING_ROWS, filters)
@@ -746,7 +760,7 @@ def _pn_contains(session: Session, be: _Backend, qn: str, filters: list) -> list
 # --------------------------------------------------------------------------- text reading (B)
 
 
-def _text_reading(session: Session, be: _Backend, q: _Query, kind: str | None, filters: list,
+def _text_reading(session: Reader, be: _Backend, q: _Query, kind: str | None, filters: list,
                   limit: int, scan_descriptions: bool = True,
                   ) -> dict[int, tuple[float, list[str], list[str], str, str]]:
     """Ratings, maker and description words: part id -> (score, reasons, how, maker, pn).
@@ -779,19 +793,19 @@ def _text_reading(session: Session, be: _Backend, q: _Query, kind: str | None, f
             out.update(_rated(session, be, q, k, terms, char, filters, fetch, limit))
     elif q.makers:
         out.update(_rated(session, be, q, kind or q.kind_hint, [], None,
-                          filters + [Part.maker.in_(q.makers)], fetch, limit))
+                          filters + [P.maker.in_(q.makers)], fetch, limit))
     else:
-        likes = [_lower_sql(Part.description, be).like(_like_word(w), escape="\\")
+        likes = [_lower_sql(P.description, be).like(_like_word(w), escape="\\")
                  for w in q.desc_words]
         hint = q.kind_hint if not kind else None
         # parts with every word (and the kind word's kind) have the top score: read them in
         # maker and part-number order among the first makers and stop at ``fetch`` (a few
         # hundred rows for common words); only when fewer than ``limit`` turn up there is every
         # description scored (a full read: about 1-2 s at a million parts on SQLite)
-        every = likes + ([Part.kind == hint] if hint else [])
-        makers = _catalog_makers(session)
+        every = likes + ([P.kind == hint] if hint else [])
+        makers = _catalog_makers(session, q)
         if makers:  # the first makers only (~2 %): a rare word would otherwise walk them all
-            every.append(Part.maker <= makers[len(makers) // 50])
+            every.append(P.maker <= makers[len(makers) // 50])
         top = _rated(session, be, q, None, [], None, filters + every, fetch, limit,
                      kind_piece=hint, maker_order=True)
         if len(top) >= limit:
@@ -801,7 +815,7 @@ def _text_reading(session: Session, be: _Backend, q: _Query, kind: str | None, f
     return out
 
 
-def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: list[_Term],
+def _rated(session: Reader, be: _Backend, q: _Query, kind: str | None, terms: list[_Term],
            char: object, filters: list, fetch: int, limit: int, cap: int | None = None,
            kind_piece: str | None = None, maker_order: bool = False,
            ) -> dict[int, tuple[float, list[str], list[str], str, str]]:
@@ -812,22 +826,22 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
     """
     conds = list(filters)
     if kind:
-        conds.append(Part.kind == kind)
+        conds.append(P.kind == kind)
     if isinstance(char, str):
-        conds.append(Part.characteristic == char)
+        conds.append(P.characteristic == char)
     pieces = []  # (weight, sql closeness)
     for t in terms:
-        cols = [getattr(Part, c) for c in t.columns]
+        cols = [P[c] for c in t.columns]
         colexpr = cols[0] if len(cols) == 1 else func.coalesce(*cols)
         conds.append(colexpr.between(t.lo, t.hi))
         pieces.append((t.weight, _rating_sql(t, colexpr)))
     for _w in q.maker_words:
-        pieces.append((2.0, case((Part.maker.in_(q.makers), literal(1.0)), else_=literal(0.0))))
+        pieces.append((2.0, case((P.maker.in_(q.makers), literal(1.0)), else_=literal(0.0))))
     for w in q.desc_words:
-        pieces.append((1.0, case((_lower_sql(Part.description, be).like(_like_word(w), escape="\\"),
+        pieces.append((1.0, case((_lower_sql(P.description, be).like(_like_word(w), escape="\\"),
                                   literal(1.0)), else_=literal(0.0))))
     if kind_piece:
-        pieces.append((1.0, case((Part.kind == kind_piece, literal(1.0)), else_=literal(0.0))))
+        pieces.append((1.0, case((P.kind == kind_piece, literal(1.0)), else_=literal(0.0))))
     tol = _tolerance_asked(q.ratings) if kind == "capacitor" else None
     total = sum(w for w, _ in pieces)
     if total > 0:
@@ -839,11 +853,11 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
     if tol is not None:
         score = score - _tolerance_sql(tol)
     colnames = sorted({c for t in terms for c in t.columns})
-    cols = [Part.id, Part.maker, Part.part_number, Part.kind, Part.description,
-            Part.tolerance_minus, Part.tolerance_plus, Part.characteristic,
-            *[getattr(Part, c) for c in colnames]]
+    cols = [P.id, P.maker, P.part_number, P.kind, P.description,
+            P.tolerance_minus, P.tolerance_plus, P.characteristic,
+            *[P[c] for c in colnames]]
     base = select(*cols, score.label("score")).where(*conds)
-    by_score = (score.desc(), _c(Part.maker, be), _c(Part.part_number, be))
+    by_score = (score.desc(), _c(P.maker, be), _c(P.part_number, be))
     primary = _primary(kind, terms)
 
     def run(stmt, index: str | None = None,
@@ -852,12 +866,12 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
                         kind_piece)
 
     if maker_order:  # every row has the same score: the first in maker order
-        return run(base.order_by(_c(Part.maker, be), _c(Part.part_number, be)).limit(fetch),
+        return run(base.order_by(_c(P.maker, be), _c(P.part_number, be)).limit(fetch),
                    be.maker_index)
     if primary is None:
         return run(base.order_by(*by_score).limit(cap or fetch))
     index = f"ix_parts_kind_{primary.columns[0]}" if be.dialect == "sqlite" else None
-    pcol = getattr(Part, primary.columns[0])
+    pcol = P[primary.columns[0]]
     share = 100.0 * primary.weight / total
 
     # A. Many parts may meet every asked value exactly (a catalog holds thousands of 0.95 uF /
@@ -874,7 +888,7 @@ def _rated(session: Session, be: _Backend, q: _Query, kind: str | None, terms: l
     # GROUP BY; rows are read for the nearest values only, widening until no part further out
     # could reach the last score kept (its primary rating alone would cost it more).
     groups = [tuple(r) for r in _execute(session, be, select(pcol, func.count()).where(
-        Part.kind == kind, pcol.between(primary.lo, primary.hi)).group_by(pcol), index)]
+        P.kind == kind, pcol.between(primary.lo, primary.hi)).group_by(pcol), index)]
     groups.sort(key=lambda g: (1.0 - _rating_closeness(g[0], primary), g[0]))
     want, taken = fetch, 0
     while True:
@@ -911,40 +925,40 @@ def _primary(kind: str | None, terms: list[_Term]) -> _Term | None:
 _BAND = 99.9
 
 
-def _band_rows(session: Session, be: _Backend, base, score, kind: str, primary: _Term, pcol,
+def _band_rows(session: Reader, be: _Backend, base, score, kind: str, primary: _Term, pcol,
                fetch: int, q: _Query):
     """Statement for step A, or None when the band looks too small to be worth it."""
     if not be.byte_order or (be.dialect == "sqlite" and not be.maker_index):
         return None  # maker order would need a sort of the whole table
     exact = pcol.between(primary.asked * (1 - 1e-9), primary.asked * (1 + 1e-9))
     index = f"ix_parts_kind_{primary.columns[0]}" if be.dialect == "sqlite" else None
-    stmt = select(func.count()).select_from(Part).where(Part.kind == kind, exact)
+    stmt = select(func.count()).select_from(parts).where(P.kind == kind, exact)
     in_band = _execute(session, be, stmt, index).scalar() or 0
     if in_band < 3 * fetch:
         return None
     # rows A expects to read (half of the exact-primary parts assumed to meet the other terms)
     # against the rows B reads for the exact primary value: take the cheaper
     if not q.maker_words:  # with a maker word A reads only that maker's parts
-        rows = session.execute(select(func.max(Part.id))).scalar() or 0
+        rows = session.execute(select(func.max(P.id))).scalar() or 0
         if 2.0 * fetch * rows / in_band > in_band:
             return None
-    makers = q.makers if q.maker_words else _catalog_makers(session)
+    makers = q.makers if q.maker_words else _catalog_makers(session, q)
     if not makers:
         return None
     # makers to read so that about 4 x fetch band parts are expected among them
     share = min(1.0, 4.0 * fetch / in_band)
     upto = makers[min(len(makers) - 1, int(share * len(makers)))]
-    stmt = base.where(score >= _BAND, Part.maker <= upto)
+    stmt = base.where(score >= _BAND, P.maker <= upto)
     if q.maker_words:
-        stmt = stmt.where(Part.maker.in_(q.makers))
-    return stmt.order_by(Part.maker, Part.part_number).limit(fetch)
+        stmt = stmt.where(P.maker.in_(q.makers))
+    return stmt.order_by(P.maker, P.part_number).limit(fetch)
 
 
 _FROM_PARTS = re.compile(r"\bFROM parts\b")
 _MARK = re.compile(r"/\*pm-index:(\w+)\*/ ?")
 
 
-def _execute(session: Session, be: _Backend, stmt, index: str | None = None):
+def _execute(session: Reader, be: _Backend, stmt, index: str | None = None):
     """Run ``stmt``; on SQLite with ``INDEXED BY index`` on its main ``FROM parts``.
 
     SQLite plans without statistics unless the catalog was analysed, and may pick a rating index
