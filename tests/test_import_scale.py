@@ -528,3 +528,125 @@ def test_batch_mixing_new_and_known_parts(engine, monkeypatch):
         ("N-4", "A1", 1, None), ("N-5", "A1", 6, None), ("N-6", "A2", 7, None)]
     assert n_parts == 7
     assert _ledger_disagreements(engine) == []
+
+
+# ---------------------------------------------------------------- parallel reading
+# A large file is read and checked in a child process while the importing one writes
+# (csvrows.ParsedRows). The serial import is the oracle: the same file must give the same
+# rows, counts and first error either way.
+def untimed(engine) -> dict[str, list[tuple]]:
+    """:func:`dump` without the time stamps (two imports never run at the same instant)."""
+    from sqlalchemy import DateTime
+
+    out = {}
+    with engine.connect() as conn:
+        for table in Base.metadata.sorted_tables:
+            cols = [c for c in table.columns if not isinstance(c.type, DateTime)]
+            rows = conn.execute(table.select().with_only_columns(*cols)
+                                .order_by(*table.primary_key.columns)).all()
+            out[table.name] = [tuple((type(v).__name__, repr(v)) for v in r) for r in rows]
+    return out
+
+
+def _outcome(engine, path, parallel: bool, **kw):
+    if engine.dialect.name == "postgresql":  # ids from 1 again, as on SQLite after a wipe
+        names = ", ".join(t.name for t in Base.metadata.sorted_tables)
+        with engine.begin() as conn:
+            conn.execute(text(f"TRUNCATE {names} RESTART IDENTITY CASCADE"))
+    else:
+        wipe(engine)
+    seed(engine)
+    try:
+        rep = import_csv(engine, path, parallel=parallel, **kw)
+        result = ("ok", rep.rows, rep.parts_added, rep.parts_updated, rep.stock_rows)
+    except PartsmatchError as exc:
+        result = ("error", str(exc))
+    return result, untimed(engine)
+
+
+@st.composite
+def _mostly_valid_table(draw):
+    """Rows whose cells pass on their own (the faults left are between rows and against the
+    catalog), so that most files import and their last, short batch counts."""
+    extra = draw(st.lists(st.sampled_from(sorted(_VALID)), max_size=5, unique=True))
+    header = ["part_number", "maker", "kind"] + [c for c in extra
+                                                 if c not in ("maker", "kind")]
+    cell = {c: _serial if c == "part_number" else st.sampled_from(_VALID[c]) for c in header}
+    rows = [[draw(cell[c]) for c in header] for _ in range(draw(st.integers(0, 11)))]
+    return header, rows
+
+
+@settings(max_examples=25, derandomize=True, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(table=st.one_of(_table(), _mostly_valid_table()), update=st.booleans(),
+       dry_run=st.booleans(),
+       ignore_extra=st.booleans())
+def test_parallel_reading_gives_what_serial_reading_gives(engine, tmp_path, monkeypatch, table,
+                                                          update, dry_run, ignore_extra):
+    monkeypatch.setattr(cio, "BATCH", 3)  # several batches, faults after earlier ones
+    header, rows = table
+    path = tmp_path / "t.csv"
+    write_csv(path, header, rows)
+    kw = dict(update=update, dry_run=dry_run, ignore_extra=ignore_extra)
+    serial = _outcome(engine, path, False, **kw)
+    parallel = _outcome(engine, path, True, **kw)
+    assert parallel == serial
+
+
+def test_parallel_reading_of_faults_found_at_every_stage(engine, tmp_path, monkeypatch):
+    """Each kind of first fault, read by the child: in a cell, in the file's structure, in
+    the encoding, against the catalog, between rows of one part."""
+    monkeypatch.setattr(cio, "BATCH", 2)
+    head = "part_number,maker,kind,capacitance\n"
+    cases = {
+        "cell": (head + "A-1,M,capacitor,1 uF\nA-2,M,capacitor,1 uF\nA-3,M,capacitor,2 x\n",
+                 "{}:4: column 'capacitance'"),
+        "structure": (head + "A-1,M,capacitor,1 uF\nA-2,M,capacitor,1 uF,extra,cells\n",
+                      "{}:3: 6 cells where the header has 4"),
+        # the known part is in the short batch of the rows before a bad cell
+        "known part": (head + "A-1,M,capacitor,1 uF\nA-2,M,capacitor,1 uF\n"
+                       "SEED-1,Seedworks,capacitor,0.95 uF\nA-4,M,capacitor,2 x\n",
+                       "{}:4: part Seedworks:SEED-1 is already in the catalog"),
+        "rows disagree": (head + "A-1,M,capacitor,1 uF\nA-1,M,capacitor,2 uF\n",
+                          "{}:3: column 'capacitance': differs from line 2 of the same part"),
+        "header": ("part_number,maker\nA-1,M\n", "{}:1: column 'kind': the header lacks"),
+    }
+    for label, (text_, expected) in cases.items():
+        path = tmp_path / f"{label.replace(' ', '_')}.csv"
+        path.write_text(text_)
+        for parallel in (False, True):
+            (kind, msg), _ = _outcome(engine, path, parallel)
+            assert kind == "error" and msg.startswith(expected.format(path)), (label, msg)
+    bad = tmp_path / "latin1.csv"
+    bad.write_bytes(b"part_number,maker,kind\nA-1,M,diode\nA-2,M,caf\xe9\n")
+    (kind, msg), _ = _outcome(engine, bad, True)
+    assert msg.startswith(f"{bad}:3: not UTF-8 text"), msg
+
+
+def test_parallel_reading_reports_progress_from_the_child(engine, tmp_path, monkeypatch):
+    monkeypatch.setattr(cio, "BATCH", 10)
+    path = tmp_path / "p.csv"
+    path.write_text("\n".join([_BK_HEADER] + _rows(35)) + "\n")
+    seen: list[tuple[int, float | None]] = []
+    import_csv(engine, path, parallel=True, progress=lambda rows, frac: seen.append((rows, frac)))
+    assert [r for r, _ in seen] == [10, 20, 30, 35]
+    fractions = [f for _, f in seen]
+    assert fractions == sorted(fractions) and fractions[-1] == 1.0 and fractions[0] > 0
+
+
+def test_a_child_that_dies_is_an_internal_error_and_changes_nothing(engine, tmp_path,
+                                                                    monkeypatch):
+    import partsmatch.catalog.csvrows as rows_mod
+
+    seed(engine)
+    before = dump(engine)
+    path = tmp_path / "d.csv"
+    path.write_text("\n".join([_BK_HEADER] + _rows(5)) + "\n")
+    monkeypatch.setattr(rows_mod.sys, "executable", "/bin/false")  # starts, writes nothing
+    with pytest.raises(RuntimeError, match=r"the CSV parsing process stopped \(exit code 1\)"):
+        import_csv(engine, path, parallel=True)
+    assert dump(engine) == before
+    # a Python that cannot be started at all: the file is read in this process instead
+    monkeypatch.setattr(rows_mod.sys, "executable", str(tmp_path / "no-such-python"))
+    rep = import_csv(engine, path, parallel=True)
+    assert rep.parts_added == 5

@@ -19,21 +19,9 @@ from sqlalchemy import (
     String, Table, Text, UniqueConstraint,
 )
 
-#: Part kinds, fuse characteristics (IEC 60127-1) and fuse standards.
-KINDS = ("capacitor", "diode", "fuse", "resistor")
-CHARACTERISTICS = ("FF", "F", "M", "T", "TT")
-FUSE_STANDARDS = ("IEC 60127", "UL 248-14", "HV")
-
-#: Rating columns and their units (keys of partsmatch.units.UNITS), in CSV contract order.
-RATING_UNITS: dict[str, str] = {
-    "capacitance": "F", "tolerance_minus": "%", "tolerance_plus": "%", "voltage_ac": "V",
-    "rated_frequency": "Hz", "voltage_dc": "V", "bleeder": "ohm", "ripple_current": "A",
-    "temp_max": "degC", "vrrm": "V", "if_avg": "A", "ifsm": "A", "trr": "s", "vf": "V",
-    "rated_current": "A", "voltage": "V", "voltage_dc_fuse": "V", "breaking_capacity": "A",
-    "i2t": "A2s", "resistance": "ohm", "power": "W", "voltage_max": "V",
-}
-#: Free-text columns of a part.
-TEXT_COLUMNS = ("description", "dielectric", "characteristic", "fuse_standard", "size")
+from partsmatch.catalog.vocab import (  # noqa: F401  (re-exported)
+    CHARACTERISTICS, FUSE_STANDARDS, KINDS, RATING_UNITS, TEXT_COLUMNS,
+)
 
 NAMING = {
     "ix": "ix_%(column_0_label)s",
