@@ -636,17 +636,30 @@ def test_parallel_reading_reports_progress_from_the_child(engine, tmp_path, monk
 
 def test_a_child_that_dies_is_an_internal_error_and_changes_nothing(engine, tmp_path,
                                                                     monkeypatch):
+    import sys
+
     import partsmatch.catalog.csvrows as rows_mod
 
     seed(engine)
     before = dump(engine)
     path = tmp_path / "d.csv"
     path.write_text("\n".join([_BK_HEADER] + _rows(5)) + "\n")
-    monkeypatch.setattr(rows_mod.sys, "executable", "/bin/false")  # starts, writes nothing
-    with pytest.raises(RuntimeError, match=r"the CSV parsing process stopped \(exit code 1\)"):
+    # a child that sends one (empty) batch, complains and dies
+    fake = tmp_path / "fake-python"
+    fake.write_text("#!/bin/sh\n" f"exec {sys.executable} -c \"import pickle, sys; "
+                    "pickle.dump(('batch', [], {}, 0.1), sys.stdout.buffer); "
+                    "sys.stdout.flush(); print('parser broke', file=sys.stderr); "
+                    "sys.exit(3)\"\n")
+    fake.chmod(0o755)
+    monkeypatch.setattr(rows_mod.sys, "executable", str(fake))
+    with pytest.raises(RuntimeError,
+                       match=r"the CSV parsing process stopped \(exit code 3\): parser broke"):
         import_csv(engine, path, parallel=True)
     assert dump(engine) == before
-    # a Python that cannot be started at all: the file is read in this process instead
-    monkeypatch.setattr(rows_mod.sys, "executable", str(tmp_path / "no-such-python"))
-    rep = import_csv(engine, path, parallel=True)
-    assert rep.parts_added == 5
+    # a child that dies before its first frame, or a Python that cannot be started at all:
+    # the file is read in this process instead
+    for exe in ("/bin/false", str(tmp_path / "no-such-python")):
+        monkeypatch.setattr(rows_mod.sys, "executable", exe)
+        rep = import_csv(engine, path, parallel=True, dry_run=True)
+        assert (rep.rows, rep.parts_added) == (5, 5), exe
+    assert dump(engine) == before

@@ -604,6 +604,10 @@ def _error_from(fields: dict) -> PartsmatchError:
                column=fields["column"], key=fields["key"], value=fields["value"])
 
 
+class ChildUnavailable(RuntimeError):
+    """The parsing child stopped before its first frame (it could not start partsmatch)."""
+
+
 #: Pipe buffer asked for on Linux (a batch of 5000 rows pickles to about 1.2 MB; the default
 #: 64 KiB would make the child wait on every 64 KiB the importing process has not read yet).
 PIPE_BYTES = 1 << 20
@@ -637,11 +641,15 @@ class ParsedRows:
 
     def __iter__(self) -> Iterator[tuple[list, dict]]:
         out = self._proc.stdout
+        started = False
         while True:
             try:
                 frame = pickle.load(out)
             except (EOFError, pickle.UnpicklingError):
+                if not started:  # nothing read yet: the caller may read the file itself
+                    raise ChildUnavailable(self._died()) from None
                 raise RuntimeError(self._died()) from None
+            started = True
             if frame[0] == "batch":
                 self.fraction = frame[3]
                 yield frame[1], frame[2]

@@ -30,7 +30,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from partsmatch.catalog.csvrows import (  # noqa: F401  (the CSV contract, re-exported)
     ALL_COLUMNS, CSV_COLUMNS, FREE_TEXT, MAX_QUANTITY, OPTIONAL_COLUMNS, PART_COLUMNS, REQUIRED,
-    ParsedRows, _data_rows, _decode_error_line, _differs, _NOT_NULL, _read_header, _read_rows,
+    ChildUnavailable, ParsedRows, _data_rows, _decode_error_line, _differs, _NOT_NULL, _read_header, _read_rows,
     batches, compile_row_parser, escape_cell, parse_row, unescape_cell,
 )
 from partsmatch.catalog.models import RATING_UNITS, Part, Stock, utcnow
@@ -130,8 +130,12 @@ def import_csv(engine: Engine, path: str | Path | None = None, *, stream: TextIO
                         except OSError:  # no child process here: read the file in this one
                             parsed = None
                     if parsed is not None:
-                        job.run(parsed, _progress_of_child(parsed, progress))
-                    else:
+                        try:
+                            job.run(parsed, _progress_of_child(parsed, progress))
+                        except ChildUnavailable:  # it wrote nothing: read the file here
+                            parsed.close()
+                            parsed = None
+                    if parsed is None:
                         header = _read_header(reader, name, ignore_extra)
                         parse = compile_row_parser(header, null=job.null, booleans=job.booleans)
                         job.run(batches(_data_rows(reader, name, len(header)), parse, BATCH,
