@@ -618,9 +618,11 @@ class ParsedRows:
 
     Iterating yields the ``(batch, first)`` pairs of :func:`batches` as a serial import makes
     them, and raises the child's first error (a :class:`PartsmatchError` with file and line)
-    where a serial import would. ``fraction`` is the part of the file read so far. The child is killed
-    on :meth:`close` if it is still running; a child that dies without a last frame is an
-    internal error (RuntimeError) naming its exit code and the last line it wrote to stderr.
+    where a serial import would. ``fraction`` is the part of the file read so far. The child
+    is killed on :meth:`close` if it is still running. A child that dies before its first
+    frame raises :class:`ChildUnavailable` (nothing has been read: the caller can read the file
+    itself); one that dies later is an internal error (RuntimeError); both name its exit code
+    and the last line it wrote to stderr.
     """
 
     def __init__(self, path: str | Path, name: str, ignore_extra: bool, sqlite: bool,
@@ -628,9 +630,13 @@ class ParsedRows:
         self.fraction: float | None = 0.0
         self._stderr = tempfile.TemporaryFile()
         args = json.dumps([str(path), name, ignore_extra, sqlite, size_of_batch])
-        self._proc = subprocess.Popen([sys.executable, "-m", "partsmatch.catalog.csvrows", args],
-                                      stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
-                                      stderr=self._stderr)
+        try:
+            self._proc = subprocess.Popen(
+                [sys.executable, "-m", "partsmatch.catalog.csvrows", args],
+                stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=self._stderr)
+        except OSError:
+            self._stderr.close()
+            raise
         try:  # Linux: a pipe that holds a whole batch, so that the child rarely waits on it
             import fcntl
 

@@ -29,9 +29,10 @@ from sqlalchemy import update as sql_update
 from sqlalchemy.exc import SQLAlchemyError
 
 from partsmatch.catalog.csvrows import (  # noqa: F401  (the CSV contract, re-exported)
-    ALL_COLUMNS, CSV_COLUMNS, FREE_TEXT, MAX_QUANTITY, OPTIONAL_COLUMNS, PART_COLUMNS, REQUIRED,
-    ChildUnavailable, ParsedRows, _data_rows, _decode_error_line, _differs, _NOT_NULL, _read_header, _read_rows,
-    batches, compile_row_parser, escape_cell, parse_row, unescape_cell,
+    _NOT_NULL, ALL_COLUMNS, CSV_COLUMNS, FREE_TEXT, MAX_QUANTITY, OPTIONAL_COLUMNS, PART_COLUMNS,
+    REQUIRED, ChildUnavailable, ParsedRows, _data_rows, _decode_error_line, _differs,
+    _read_header, _read_rows, batches, compile_row_parser, escape_cell, parse_row,
+    unescape_cell,
 )
 from partsmatch.catalog.models import RATING_UNITS, Part, Stock, utcnow
 from partsmatch.errors import InputError, UnitError
