@@ -388,12 +388,10 @@ def test_reference_multiplier_charge_balance(ngspice):
     assert max(abs(e) for e in err.values()) < 5e-3, f"{ngspice}: {err}"
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
-    "engine's diode mean currents break charge balance by 1-2 % in the loaded multiplier "
-    "(D4 1.997 mA although it alone feeds the 2 mA load and C4's bleeder; ngspice 2.023 mA); "
-    "likely cause: it integrates its output samples by trapezoids, 13-18 per diode pulse in "
-    "the 3-stage demo, where its capacitor voltages repeat within 1.2 mV per period"))
 def test_engine_multiplier_charge_balance(ngspice):
-    # the same check on the engine's own by_state["loaded"] values, within 0.5 %
+    # the same check on the engine's own by_state["loaded"] values, within 0.5 %. Its means
+    # once came from trapezoids over 15-20 samples a diode pulse and missed by 1-2 % (D4
+    # 1.997 mA where Kirchhoff asks 2.03 mA); Simpson's rule within each segment brought them
+    # to 0.2 % (solver.segment_weights).
     err = _balance_errors(_engine("mult2-current")["by_state"]["loaded"])
     assert max(abs(e) for e in err.values()) < 5e-3, f"engine: {err}"

@@ -127,6 +127,71 @@ class Segment:
     mode: tuple[bool, ...]
 
 
+def segment_weights(t: np.ndarray) -> np.ndarray:
+    """Quadrature weights ``w`` with ``w @ y`` the integral of ``y`` over one segment's samples.
+
+    Within a segment the network is linear and its waveforms are smooth, so Simpson's rule
+    (error O(h^4)) replaces the trapezoid (O(h^2): with 512 samples a period and 15-20 in a
+    multiplier's diode pulse, the trapezoid left the diodes' mean currents 1-2 % off their
+    charge balance). The samples are uniform but for the last interval (an event, or the run's
+    end): Simpson pairs cover the uniform run; a left-over interval is integrated by the
+    parabola through its two points and the one before it (or after it, at the start); a
+    segment of one interval by the trapezoid.
+    The weights sum to ``t[-1] - t[0]`` (constants are integrated exactly).
+    """
+    n = len(t) - 1
+    w = np.zeros(len(t))
+    if n < 1:
+        return w
+    h = np.diff(t)
+    if n == 1 or h[0] <= 0:
+        w[:-1] += 0.5 * h
+        w[1:] += 0.5 * h
+        return w
+    off = np.abs(h - h[0]) > 1e-6 * h[0]
+    uniform = int(np.argmax(off)) if off.any() else n  # leading intervals of the first's size
+    m = uniform - uniform % 2
+    if m:
+        third = h[0] / 3.0
+        w[0:m + 1:2] += 2 * third
+        w[1:m:2] += 4 * third
+        w[0] -= third
+        w[m] -= third
+    for k in range(m, n):  # the interval [t[k], t[k+1]], by a parabola with a third point
+        hk = h[k]
+        if k and h[k - 1] > 0:  # the point before: t[k-1], t[k], t[k+1]
+            near, far, side = k, k + 1, k - 1
+            h1 = h[k - 1]
+        elif k + 2 <= n and h[k + 1] > 0:  # the point after, mirrored: t[k+2], t[k+1], t[k]
+            near, far, side = k + 1, k, k + 2
+            h1 = h[k + 1]
+        else:
+            w[k] += 0.5 * hk
+            w[k + 1] += 0.5 * hk
+            continue
+        c = hk * hk / (6.0 * (h1 + hk))
+        d = hk * c / h1
+        w[side] -= d
+        w[near] += 0.5 * hk + c + d
+        w[far] += 0.5 * hk - c
+    return w
+
+
+def quadrature_weights(segments: list["Segment"]) -> np.ndarray:
+    """Weights for the integral over a run's concatenated samples: :func:`segment_weights`
+    within each segment, the trapezoid across the short gaps between segments (a mode starts
+    a moment after its event)."""
+    parts = []
+    for k, seg in enumerate(segments):
+        w = segment_weights(seg.t)
+        if k:
+            gap = float(seg.t[0] - segments[k - 1].t[-1])
+            parts[-1][-1] += 0.5 * gap
+            w[0] += 0.5 * gap
+        parts.append(w)
+    return np.concatenate(parts) if parts else np.zeros(0)
+
+
 @dataclass
 class Run:
     segments: list[Segment]
@@ -810,15 +875,16 @@ class Netlist:
 
     # --- outputs ----------------------------------------------------------------------------
     def outputs(self, segments: list[Segment]) -> dict[str, np.ndarray]:
-        """Waveforms of a run: ``t``; ``v(node)``; ``v(elem)`` and ``i(elem)`` per element
-        (element voltage V(a) - V(b), current from a to b)."""
+        """Waveforms of a run: ``t``; ``w`` (quadrature weights: ``w @ y`` integrates a
+        waveform over the run, see :func:`quadrature_weights`); ``v(node)``; ``v(elem)`` and
+        ``i(elem)`` per element (element voltage V(a) - V(b), current from a to b)."""
         ts, ys = [], []
         for seg in segments:
             ts.append(seg.t)
             ys.append(self.mode(seg.mode).Y @ seg.Z)
         t = np.concatenate(ts)
         y = np.concatenate(ys, axis=1)
-        out = {"t": t}
+        out = {"t": t, "w": quadrature_weights(segments)}
         nn = len(self.nodes)
         for i, n in enumerate(self.nodes):
             out[f"v({n})"] = y[i]

@@ -72,15 +72,17 @@ PHASES = 8
 
 # --- small measures over non-uniform samples ------------------------------------------------
 def _integral(t: np.ndarray, y: np.ndarray) -> float:
+    """Trapezoid integral (a window of a run, such as one switch-on pulse)."""
     return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(t)))
 
 
-def _mean(t: np.ndarray, y: np.ndarray) -> float:
-    return _integral(t, y) / float(t[-1] - t[0])
+def _mean(w: np.ndarray, y: np.ndarray) -> float:
+    """Mean of a waveform over a run, by the run's quadrature weights (``outputs()["w"]``)."""
+    return float(w @ y) / float(w.sum())
 
 
-def _rms(t: np.ndarray, y: np.ndarray) -> float:
-    return math.sqrt(max(_mean(t, y * y), 0.0))
+def _rms(w: np.ndarray, y: np.ndarray) -> float:
+    return math.sqrt(max(_mean(w, y * y), 0.0))
 
 
 def _signed_peak(y: np.ndarray) -> float:
@@ -142,7 +144,7 @@ def _cap_energy(spec: CircuitSpec, slot: str, v_peak: float, safe: float
 def _steady_measures(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: SteadyState,
                      safe: float) -> dict[str, Any]:
     out = net.outputs(ss.run.segments)
-    t = out["t"]
+    w = out["w"]
     res = _empty(spec)
     f = spec.source.frequency
     for slot, p in spec.parts.items():
@@ -150,20 +152,20 @@ def _steady_measures(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: Steady
         v, i = out[f"v({el})"], out[f"i({el})"]
         d = res["slots"][slot]
         if p.role == "capacitor":
-            vm = _mean(t, v)
+            vm = _mean(w, v)
             d.update(v_peak=_signed_peak(v), v_min=float(v.min()), v_max=float(v.max()),
-                     v_mean=vm, v_ac_rms=_rms(t, v - vm), i_rms=_rms(t, i))
+                     v_mean=vm, v_ac_rms=_rms(w, v - vm), i_rms=_rms(w, i))
             d["energy_j"], d["discharge_s"] = _cap_energy(spec, slot, d["v_peak"], safe)
         elif p.role == "diode":
-            d.update(v_reverse_peak=max(0.0, float(-v.min())), i_avg=_mean(t, i),
-                     i_peak=float(i.max()), i_rms=_rms(t, i), frequency_hz=f)
+            d.update(v_reverse_peak=max(0.0, float(-v.min())), i_avg=_mean(w, i),
+                     i_peak=float(i.max()), i_rms=_rms(w, i), frequency_hz=f)
         else:
-            d.update(i_rms=_rms(t, i), i_peak=float(np.abs(i).max()),
-                     i2t_cycle=_integral(t, i * i))
+            d.update(i_rms=_rms(w, i), i_peak=float(np.abs(i).max()),
+                     i2t_cycle=float(w @ (i * i)))
     v, i = _load_vi(out, wiring)
-    res["load"].update(v_mean=_mean(t, v), v_peak=_signed_peak(v), i_mean=_mean(t, i),
-                       p_mean=_mean(t, v * i))
-    res["source"]["i_rms"] = _rms(t, out[f"i({wiring.source})"])
+    res["load"].update(v_mean=_mean(w, v), v_peak=_signed_peak(v), i_mean=_mean(w, i),
+                       p_mean=_mean(w, v * i))
+    res["source"]["i_rms"] = _rms(w, out[f"i({wiring.source})"])
     return res
 
 
@@ -190,7 +192,7 @@ def _fuse_open(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: SteadyState,
     run = open_net.run(z0, t0, FUSE_OPEN_PERIODS * open_net.period)
     out = open_net.outputs(run.segments)
     v = out["v(F1)"]
-    return float(np.abs(v).max()), _rms(out["t"], v)
+    return float(np.abs(v).max()), _rms(out["w"], v)
 
 
 def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str, Any]]:
