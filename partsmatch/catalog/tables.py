@@ -5,9 +5,9 @@ range query: capacitance in F, tolerances in %, voltages in V (``voltage_ac`` RM
 times in s, I²t in A²s, resistance in ohm, power in W, temperatures in degC.
 
 The lookups (:mod:`partsmatch.catalog.search`, :mod:`partsmatch.catalog.queries`) query these
-tables directly, so that ``partsmatch find`` starts without importing the ORM (a third of its
-start-up); :mod:`partsmatch.catalog.models` maps ORM classes onto the same tables for the code
-that writes. Schema changes go through Alembic revisions in ``migrations/`` only.
+tables directly, so that ``partsmatch find`` starts without importing the ORM (about a quarter
+of its start-up); :mod:`partsmatch.catalog.models` maps ORM classes onto the same tables for
+the code that writes. Schema changes go through Alembic revisions in ``migrations/`` only.
 """
 
 from __future__ import annotations
