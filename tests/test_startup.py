@@ -61,8 +61,8 @@ def test_every_table_command_offers_json():
 
 def test_find_runs_without_the_orm(tmp_path):
     """``partsmatch find`` reads through Core tables: it neither imports the ORM (about a
-    quarter of its start-up) nor the heavy modules, on a real catalog with a spec-style and a part-number
-    query (the part-number query loads rapidfuzz, which is light)."""
+    quarter of its start-up) nor the heavy modules, on a real catalog with a spec-style and a
+    part-number query (the part-number query loads rapidfuzz, which is light)."""
     url = f"sqlite:///{tmp_path / 'c.db'}"
     from partsmatch.cli.main import run
 
