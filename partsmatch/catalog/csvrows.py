@@ -630,9 +630,9 @@ class ParsedRows:
         self.fraction: float | None = 0.0
         self._stderr = tempfile.TemporaryFile()
         args = json.dumps([str(path), name, ignore_extra, sqlite, size_of_batch])
-        try:
+        try:  # -P: the current directory stays off sys.path (the installed partsmatch runs)
             self._proc = subprocess.Popen(
-                [sys.executable, "-m", "partsmatch.catalog.csvrows", args],
+                [sys.executable, "-P", "-m", "partsmatch.catalog.csvrows", args],
                 stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=self._stderr)
         except OSError:
             self._stderr.close()
