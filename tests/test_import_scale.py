@@ -625,6 +625,11 @@ def test_parallel_reading_of_faults_found_at_every_stage(engine, tmp_path, monke
 
 def test_parallel_reading_reports_progress_from_the_child(engine, tmp_path, monkeypatch):
     monkeypatch.setattr(cio, "BATCH", 10)
+
+    def no_serial_reading(*args, **kw):
+        raise AssertionError("the file was read in the importing process, not by the child")
+
+    monkeypatch.setattr(cio, "batches", no_serial_reading)  # the child really reads it
     path = tmp_path / "p.csv"
     path.write_text("\n".join([_BK_HEADER] + _rows(35)) + "\n")
     seen: list[tuple[int, float | None]] = []
