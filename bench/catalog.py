@@ -31,7 +31,6 @@ import csv
 import json
 import os
 import random
-import resource
 import shutil
 import sqlite3
 import statistics
