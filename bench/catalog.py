@@ -14,8 +14,7 @@ Generates N invented parts (default 1,000,000; about 1.08 CSV rows per part, see
 * database size after the import (WAL checkpointed);
 * peak memory of the import (``ru_maxrss`` of the importing process plus that of its parsing
   child: both peaks added, an upper bound);
-* ``find`` median, in process and warm, for part-number and spec-style queries (when
-  ``partsmatch.catalog.search`` is there);
+* ``find`` median, in process and warm, for part-number and spec-style queries;
 * whole-CLI ``partsmatch find QUERY`` and ``partsmatch --help`` wall times (median of a few),
   beside the floors under any command: ``python -c pass`` and ``python -c "import sqlalchemy"``.
 
@@ -202,14 +201,11 @@ SPEC_QUERIES = ("0.95uF 2100VAC", "12 kV 350 mA diode", "T 2A 250V", "105J 2kV",
                 "10 Mohm 1 W", "HV fuse 0.75 A 5 kV", "1.1 uF 2500 VAC 5%", "fast diode 15kV 200ns")
 
 
-def run_find(db_path: Path, runs: int = 5) -> dict | None:
-    try:
-        from partsmatch.catalog.search import find
-    except ImportError:
-        return None
+def run_find(db_path: Path, runs: int = 5) -> dict:
     from sqlalchemy.orm import Session
 
     from partsmatch.catalog import db
+    from partsmatch.catalog.search import find
 
     rng = random.Random(3)
     pns = _sample_part_numbers(db_path, 10)
@@ -323,14 +319,10 @@ def main(argv: list[str] | None = None) -> int:
         _row(rows, "database size (MB)", f"{imp['size_mb']:,.0f}", "-", None)
         _row(rows, "import peak memory (MB, ru_maxrss)", f"{imp['maxrss_mb']:,.0f}",
              f"<= {TARGET_MEM_MB}", imp["maxrss_mb"] <= TARGET_MEM_MB)
-        if found is None:
-            _row(rows, "find, in process, warm", "n/a (search not available)",
-                 f"<= {TARGET_FIND_S * 1000:.0f} ms", None)
-        else:
-            for label in ("part number", "spec"):
-                med, worst = found[label]
-                _row(rows, f"find {label} median (ms; worst query {worst * 1000:.0f})",
-                     f"{med * 1000:.1f}", f"<= {TARGET_FIND_S * 1000:.0f}", med <= TARGET_FIND_S)
+        for label in ("part number", "spec"):
+            med, worst = found[label]
+            _row(rows, f"find {label} median (ms; worst query {worst * 1000:.0f})",
+                 f"{med * 1000:.1f}", f"<= {TARGET_FIND_S * 1000:.0f}", med <= TARGET_FIND_S)
         if "find" in cli:
             _row(rows, "partsmatch find (s, whole CLI)", f"{cli['find']:.2f}",
                  f"<= {TARGET_CLI_FIND_S}", cli["find"] <= TARGET_CLI_FIND_S)
@@ -351,10 +343,9 @@ def main(argv: list[str] | None = None) -> int:
                   for i in range(4)]
         for r in [("what", "value", "target", "result")] + rows:
             print("  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip())
-        if found is not None:
-            print("part-number queries: 5 exact, 5 as read off a worn print (e.g. "
-                  + ", ".join(repr(q) for q in found["examples"][2:]) + "); spec queries: "
-                  + ", ".join(repr(q) for q in SPEC_QUERIES))
+        print("part-number queries: 5 exact, 5 as read off a worn print (e.g. "
+              + ", ".join(repr(q) for q in found["examples"][2:]) + "); spec queries: "
+              + ", ".join(repr(q) for q in SPEC_QUERIES))
     finally:
         if tmp is not None:
             tmp.cleanup()

@@ -7,10 +7,10 @@ The engine comes from ``config.attributes["engine"]`` (set by partsmatch.catalog
 from alembic import context
 from sqlalchemy import create_engine
 
-from partsmatch.catalog.models import Base
+from partsmatch.catalog.tables import metadata
 
 config = context.config
-target_metadata = Base.metadata
+target_metadata = metadata
 
 
 def run_migrations_offline() -> None:

@@ -27,7 +27,9 @@ def run_demo(echo: Callable[[str], None] | None = print, limit: int = 5) -> dict
     from partsmatch.circuit.spec import load_circuit
     from partsmatch.report import finding_line, part_summary, stress_lines, verdict_text
     from partsmatch.rules.policy import load_policy
-    from partsmatch.substitute import Judged, Substitution, crossrefs_for, prefilter, verdict_report
+    from partsmatch.substitute import (
+        Substitution, crossrefs_for, judge_candidates, verdict_report,
+    )
 
     say = echo or (lambda _s: None)
     with tempfile.TemporaryDirectory(prefix="partsmatch-demo-") as tmp:
@@ -51,8 +53,7 @@ def run_demo(echo: Callable[[str], None] | None = print, limit: int = 5) -> dict
                     for line in stress_lines(values["role"], values, values.get("states")):
                         say(f"    {line}")
                 say("")
-                judged = sorted((sub.judge(c) for c in prefilter(session, sub)
-                                 if c.id != original.id), key=Judged.sort_key)
+                judged = judge_candidates(session, sub)
                 report = verdict_report(sub, [j for j in judged if j.verdict != "reject"][:limit],
                                  crossrefs_for(session, original))
                 say("Replacements from stock, best first:")

@@ -57,6 +57,12 @@ class PartsmatchError(Exception):
         return self.one_line()
 
 
+def short_message(exc: BaseException) -> str:
+    """A database driver's message on one line (at most 200 characters), for the errors above:
+    the driver's own exception where a wrapper carries one (``.orig``), else ``exc`` itself."""
+    return " ".join(str(getattr(exc, "orig", None) or exc).split())[:200]
+
+
 class InputError(PartsmatchError, ValueError):
     """Bad input: a file, option or value the user gave (exit 2)."""
 

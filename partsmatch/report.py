@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from partsmatch.units import format_quantity
+from partsmatch.units import format_quantity as q  # "-" for a missing value
 
 #: Stress keys per role with their units, in display order.
 STRESS_UNITS = {
@@ -16,10 +16,6 @@ STRESS_UNITS = {
              ("v_open_peak", "V"), ("v_open_rms", "V")),
 }
 LOAD_UNITS = (("v_mean", "V"), ("v_peak", "V"), ("i_mean", "A"), ("p_mean", "W"))
-
-
-def q(value: float | None, unit: str) -> str:
-    return format_quantity(value, unit) if value is not None else "-"
 
 
 def part_summary(p: dict[str, Any]) -> str:

@@ -55,7 +55,6 @@ BLEEDER_RESIM_FRACTION = 0.01
 #: fraction of the source peak voltage.
 VF_RESIM_FRACTION = 0.005
 _VERDICT_RANK = {"accept": 0, "caution": 1, "reject": 2}
-_ROLE_KIND = {"capacitor": "capacitor", "diode": "diode", "fuse": "fuse"}
 
 
 # ------------------------------------------------------------------ the original
@@ -209,12 +208,14 @@ class Substitution:
         self.external_bleeder = None
         if self.role == "capacitor" and s.bleeder and not original.bleeder and self.bleeder_known:
             self.external_bleeder = s.bleeder
-        self.base_stress = slot_stress(self.base, slot, frequency=spec.source.frequency,
-                                       ambient=self.ambient,
-                                       external_bleeder=self.external_bleeder,
-                                       capacitance=self.c0)
-        #: the slot's continuous stress with the original in place (worst of the steady states)
-        self.continuous = self.base_stress.continuous
+        #: the slot's stress with the original in place
+        self.base_stress = self._stress_of(self.base)
+
+    def _stress_of(self, result: dict[str, Any]) -> SlotStress:
+        """The slot's stress in an analysis of the circuit (the original's, or a candidate's)."""
+        return slot_stress(result, self.slot, frequency=self.spec.source.frequency,
+                           ambient=self.ambient, external_bleeder=self.external_bleeder,
+                           capacitance=self.c0)
 
     # -------------------------------------------------------------- simulations
     def _simulate(self, **values: Any) -> dict[str, Any]:
@@ -282,12 +283,7 @@ class Substitution:
             if abs(cand.vf - model_vf) > VF_RESIM_FRACTION * self.spec.source.v_peak:
                 result = self._simulate(forward_voltage=cand.vf)
                 resim = (f"VF={cand.vf:g} V",)
-        if result is self.base:
-            st = self.base_stress
-        else:
-            st = slot_stress(result, self.slot, frequency=self.spec.source.frequency,
-                             ambient=self.ambient, external_bleeder=self.external_bleeder,
-                             capacitance=self.c0)
+        st = self.base_stress if result is self.base else self._stress_of(result)
         st = replace(st, load_change=load_change, other_changes=other, resimulated=resim)
         return result, st, resim
 
@@ -337,10 +333,7 @@ class Substitution:
         except SimulationError as exc:
             # one candidate the solver cannot settle must not abort the whole ranking: judge it
             # on the original's stress and say so
-            result, resim = self.base, ()
-            st = slot_stress(self.base, self.slot, frequency=self.spec.source.frequency,
-                             ambient=self.ambient, external_bleeder=self.external_bleeder,
-                             capacitance=self.c0)
+            result, resim, st = self.base, (), self.base_stress
             extra.append(Finding("resimulation", "warn", None, None, None,
                                  f"the circuit could not be re-simulated with this part in "
                                  f"place ({exc}): judged on the original's stress",
@@ -392,14 +385,14 @@ def prefilter(session: Session, sub: Substitution, *, in_stock: bool = False,
     from partsmatch.catalog.models import Stock
 
     o, role = sub.original, sub.role
-    stmt = select(Part).where(Part.kind == _ROLE_KIND[role])
+    stmt = select(Part).where(Part.kind == role)
     if role == "capacitor":
         c0 = o.capacitance or sub.c0
         tol = max(o.tolerance_minus or 0.0, o.tolerance_plus or 0.0)
         w = 2.0 * max(tol, sub.policy["cap_window"]) / 100.0
         stmt = stmt.where(Part.capacitance.between(c0 * (1 - w), c0 * (1 + w)))
     elif role == "diode":
-        vr = sub.continuous.get("v_reverse_peak") or 0.0
+        vr = sub.base_stress.continuous.get("v_reverse_peak") or 0.0
         stmt = stmt.where(Part.vrrm >= 0.5 * abs(vr))
     elif role == "fuse":
         i0 = o.rated_current or sub.spec.parts[sub.slot].rating
@@ -454,15 +447,22 @@ def verdict_report(sub: Substitution, judged: list[Judged], xrefs: list[dict[str
     }
 
 
+def judge_candidates(session: Session, sub: Substitution, *, in_stock: bool = False
+                     ) -> list[Judged]:
+    """Every prefiltered catalog part (the original itself left out) judged in ``sub``'s slot,
+    best first."""
+    return sorted((sub.judge(c) for c in prefilter(session, sub, in_stock=in_stock)),
+                  key=Judged.sort_key)
+
+
 def replace_part(session: Session, spec, original: PartRecord, *, slot: str | None = None,
                  policy: Policy, in_stock: bool = False, include_rejected: bool = False,
                  limit: int | None = None) -> dict[str, Any]:
     """Rank the catalog's substitutes for ``original`` in ``spec`` (the verdict JSON)."""
     slot = choose_slot(spec, original, slot)
     sub = Substitution(spec, original, slot, policy)
-    cands = [c for c in prefilter(session, sub, in_stock=in_stock)
-             if not (original.id is not None and c.id == original.id)]
-    judged = sorted((sub.judge(c) for c in cands), key=Judged.sort_key)
+    judged = judge_candidates(session, sub, in_stock=in_stock)
+    n_candidates = len(judged)
     counts = {v: sum(1 for j in judged if j.verdict == v) for v in ("accept", "caution", "reject")}
     if not include_rejected:
         judged = [j for j in judged if j.verdict != "reject"]
@@ -470,7 +470,7 @@ def replace_part(session: Session, spec, original: PartRecord, *, slot: str | No
     if limit:
         judged = judged[:limit]
     report = verdict_report(sub, judged, crossrefs_for(session, original))
-    report["judged"] = {"candidates": len(cands), **counts, "not_shown": listed - len(judged)}
+    report["judged"] = {"candidates": n_candidates, **counts, "not_shown": listed - len(judged)}
     return report
 
 

@@ -266,7 +266,6 @@ def _params():
 
 @pytest.mark.parametrize("name,state", _params())
 def test_engine_matches_ngspice(ngspice, name, state):
-    pytest.importorskip("partsmatch.circuit.stress", reason="circuit engine not in the tree yet")
     bad = _compare(name, state, ngspice)
     assert not bad, f"{name} [{state}] engine vs {ngspice}:\n  " + "\n  ".join(bad)
 

@@ -7,7 +7,6 @@ import glob
 import json
 import math
 import os
-import time
 
 import numpy as np
 import pytest
@@ -168,11 +167,8 @@ def test_bleeder_steady_state_without_settling():
     # a lightly loaded doubler with a 10 Mohm bleeder: tau = R C = 9.5 s = 570 periods at 60 Hz;
     # the orbit is verified (one more period returns to it) after a handful of periods
     spec = oven("0.2 H", {"type": "resistor", "resistance": "100 Mohm"})
-    t = time.perf_counter()
     net, _, ss = steady_state(spec)
-    wall = time.perf_counter() - t
-    assert ss.residual <= 1e-5 and ss.iterations <= 20
-    assert wall < 2.0
+    assert ss.residual <= 1e-5 and ss.iterations <= 20  # speed itself: bench/stress.py
     # independent check: three more periods from the orbit stay on it
     z0 = np.concatenate([ss.x, net.u_at(0.0)])
     run = net.run(z0, 0.0, 3 * net.period)

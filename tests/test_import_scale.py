@@ -548,6 +548,10 @@ def untimed(engine) -> dict[str, list[tuple]]:
     return out
 
 
+def _no_serial_reading(*args, **kw):
+    raise AssertionError("the file was read in the importing process, not by the child")
+
+
 def _outcome(engine, path, parallel: bool, **kw):
     if engine.dialect.name == "postgresql":  # ids from 1 again, as on SQLite after a wipe
         names = ", ".join(t.name for t in Base.metadata.sorted_tables)
@@ -556,11 +560,14 @@ def _outcome(engine, path, parallel: bool, **kw):
     else:
         wipe(engine)
     seed(engine)
-    try:
-        rep = import_csv(engine, path, parallel=parallel, **kw)
-        result = ("ok", rep.rows, rep.parts_added, rep.parts_updated, rep.stock_rows)
-    except PartsmatchError as exc:
-        result = ("error", str(exc))
+    with pytest.MonkeyPatch.context() as mp:
+        if parallel:  # the child really reads the file (no quiet fall-back to serial reading)
+            mp.setattr(cio, "batches", _no_serial_reading)
+        try:
+            rep = import_csv(engine, path, parallel=parallel, **kw)
+            result = ("ok", rep.rows, rep.parts_added, rep.parts_updated, rep.stock_rows)
+        except PartsmatchError as exc:
+            result = ("error", str(exc))
     return result, untimed(engine)
 
 
@@ -625,11 +632,7 @@ def test_parallel_reading_of_faults_found_at_every_stage(engine, tmp_path, monke
 
 def test_parallel_reading_reports_progress_from_the_child(engine, tmp_path, monkeypatch):
     monkeypatch.setattr(cio, "BATCH", 10)
-
-    def no_serial_reading(*args, **kw):
-        raise AssertionError("the file was read in the importing process, not by the child")
-
-    monkeypatch.setattr(cio, "batches", no_serial_reading)  # the child really reads it
+    monkeypatch.setattr(cio, "batches", _no_serial_reading)  # the child really reads it
     path = tmp_path / "p.csv"
     path.write_text("\n".join([_BK_HEADER] + _rows(35)) + "\n")
     seen: list[tuple[int, float | None]] = []

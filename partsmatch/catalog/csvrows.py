@@ -24,7 +24,9 @@ from typing import BinaryIO, Callable, Iterable, Iterator, TextIO
 
 from partsmatch import errors
 from partsmatch.catalog.names import normalize_part_number
-from partsmatch.catalog.vocab import CHARACTERISTICS, FUSE_STANDARDS, KINDS, RATING_UNITS
+from partsmatch.catalog.vocab import (
+    CHARACTERISTICS, FUSE_STANDARDS, KINDS, MAX_QUANTITY, RATING_UNITS,
+)
 from partsmatch.errors import InputError, PartsmatchError, UnitError
 from partsmatch.units import ac_dc, parse_quantity
 
@@ -72,8 +74,6 @@ def unescape_cell(s: str) -> str:
 _TRUE = {"true", "yes", "y", "1"}
 _FALSE = {"false", "no", "n", "0"}
 _MISSING = object()
-#: Largest stock quantity (the database column is a 32-bit integer).
-MAX_QUANTITY = 2**31 - 1
 #: A memo of cell text -> checked value is emptied when it grows past this (constant memory).
 MEMO_LIMIT = 10_000
 _TOLERANCES = ("tolerance_minus", "tolerance_plus")
@@ -251,6 +251,8 @@ def compile_row_parser(header: list[str], *, null: object = None,
         p = _polarized(raw)
         return null if p is None else (yes if p else no)
     p_tmin, p_tplus = _POS["tolerance_minus"], _POS["tolerance_plus"]
+    p_diel, p_pol, p_size = _POS["dielectric"], _POS["polarized"], _POS["size"]
+    p_char, p_std = _POS["characteristic"], _POS["fuse_standard"]
     missing = _MISSING
 
     def memo(table: dict, raw: str, fn, *args):
@@ -370,7 +372,7 @@ def compile_row_parser(header: list[str], *, null: object = None,
             out[p_tplus] = tplus
         t = cells[i_pol]
         if t:
-            out[28] = memo(m_pol, t, polarity)
+            out[p_pol] = memo(m_pol, t, polarity)
         t = cells[i_char]
         ch = memo(m_char, t, _characteristic) if t else null
         t = cells[i_std]
@@ -378,10 +380,10 @@ def compile_row_parser(header: list[str], *, null: object = None,
         if std == "IEC 60127" and not ch:
             raise InputError("an IEC 60127 fuse needs its characteristic letter (FF F M T TT)",
                              column="characteristic")
-        out[27] = diel
-        out[29] = ch
-        out[30] = std
-        out[31] = size
+        out[p_diel] = diel
+        out[p_char] = ch
+        out[p_std] = std
+        out[p_size] = size
         q, lo, c = cells[i_qty], cells[i_loc], cells[i_cost]
         stock = None
         if q or lo or c:
@@ -401,24 +403,6 @@ def compile_row_parser(header: list[str], *, null: object = None,
         return tuple(out), stock
 
     return parse
-
-
-_GENERIC: dict[tuple[str, ...], Callable] = {}
-
-
-def parse_row(row: dict[str, str]) -> tuple[dict, tuple[str, int, float | None] | None]:
-    """One CSV row (keys = column names, export's apostrophes still on) -> (part values, stock).
-
-    Raises InputError/UnitError with ``column`` set; the caller adds file and line.
-    """
-    header = tuple(row)
-    parse = _GENERIC.get(header)
-    if parse is None:
-        if len(_GENERIC) >= 16:
-            _GENERIC.clear()
-        parse = _GENERIC[header] = compile_row_parser(list(header))
-    values, stock = parse([row[h] or "" for h in header])
-    return dict(zip(PART_COLUMNS, values)), stock
 
 
 def _differs(a: tuple, b: tuple) -> str | None:
@@ -475,14 +459,6 @@ def _data_rows(reader, name: str, width: int) -> Iterator[tuple[int, list[str]]]
         if not cells or (not cells[0].strip() and not "".join(cells).strip()):
             continue
         yield reader.line_num, cells
-
-
-def _read_rows(fh: TextIO, name: str, ignore_extra: bool) -> Iterator[tuple[int, dict]]:
-    """(line, {column: cell}) of each data row (for tools and tests; import uses cells)."""
-    reader = csv.reader(fh)
-    header = _read_header(reader, name, ignore_extra)
-    for line, cells in _data_rows(reader, name, len(header)):
-        yield line, {h: c for h, c in zip(header, cells) if h in ALL_COLUMNS}
 
 
 def _decode_error_line(path: str | Path) -> int | None:

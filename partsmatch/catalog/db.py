@@ -18,7 +18,7 @@ from sqlalchemy import Engine, create_engine, event, inspect, text
 from sqlalchemy.exc import SQLAlchemyError
 
 from partsmatch._resources import migrations_path
-from partsmatch.errors import DatabaseError, SchemaOutdated
+from partsmatch.errors import DatabaseError, SchemaOutdated, short_message
 
 if TYPE_CHECKING:
     from sqlalchemy.orm import Session
@@ -151,11 +151,7 @@ def current_revision(engine: Engine) -> str | None:
             return row[0] if row else None
     except SQLAlchemyError as exc:
         raise DatabaseError(f"cannot open database {redact(str(engine.url))}: "
-                            f"{_short(exc)}") from None
-
-
-def _short(exc: BaseException) -> str:
-    return " ".join(str(getattr(exc, "orig", None) or exc).split())[:200]
+                            f"{short_message(exc)}") from None
 
 
 def upgrade(engine: Engine, revision: str = "head") -> None:
@@ -164,7 +160,7 @@ def upgrade(engine: Engine, revision: str = "head") -> None:
     try:
         command.upgrade(alembic_config(engine), revision)
     except SQLAlchemyError as exc:
-        raise DatabaseError(f"upgrade failed: {_short(exc)}") from None
+        raise DatabaseError(f"upgrade failed: {short_message(exc)}") from None
 
 
 def downgrade(engine: Engine, revision: str) -> None:
@@ -173,7 +169,7 @@ def downgrade(engine: Engine, revision: str) -> None:
     try:
         command.downgrade(alembic_config(engine), revision)
     except SQLAlchemyError as exc:
-        raise DatabaseError(f"downgrade failed: {_short(exc)}") from None
+        raise DatabaseError(f"downgrade failed: {short_message(exc)}") from None
 
 
 def status(engine: Engine) -> dict[str, str | None | bool]:

@@ -29,13 +29,12 @@ from sqlalchemy import update as sql_update
 from sqlalchemy.exc import SQLAlchemyError
 
 from partsmatch.catalog.csvrows import (  # noqa: F401  (the CSV contract, re-exported)
-    _NOT_NULL, ALL_COLUMNS, CSV_COLUMNS, FREE_TEXT, MAX_QUANTITY, OPTIONAL_COLUMNS, PART_COLUMNS,
-    REQUIRED, ChildUnavailable, ParsedRows, _data_rows, _decode_error_line, _differs,
-    _read_header, _read_rows, batches, compile_row_parser, escape_cell, parse_row,
-    unescape_cell,
+    _NOT_NULL, ALL_COLUMNS, FREE_TEXT, MAX_QUANTITY, PART_COLUMNS, ChildUnavailable, ParsedRows,
+    _data_rows, _decode_error_line, _differs, _read_header, batches, compile_row_parser,
+    escape_cell, unescape_cell,
 )
 from partsmatch.catalog.models import RATING_UNITS, Part, Stock, utcnow
-from partsmatch.errors import InputError, UnitError
+from partsmatch.errors import DatabaseError, InputError, UnitError, short_message
 from partsmatch.units import format_quantity, parse_quantity
 
 #: Rows per batch: each batch is parsed, checked against the catalog with one query, and
@@ -159,10 +158,7 @@ def import_csv(engine: Engine, path: str | Path | None = None, *, stream: TextIO
         line = _decode_error_line(path) if stream is None else reader.line_num + 1
         raise InputError(f"not UTF-8 text ({exc.reason})", file=name, line=line) from None
     except (SQLAlchemyError, dbapi_error) as exc:
-        from partsmatch.errors import DatabaseError
-
-        msg = " ".join(str(getattr(exc, "orig", None) or exc).split())[:200]
-        raise DatabaseError(f"import rolled back: {msg}", file=name) from None
+        raise DatabaseError(f"import rolled back: {short_message(exc)}", file=name) from None
     finally:
         if gc_was_enabled:
             gc.enable()
@@ -351,6 +347,15 @@ class _Import:
             for row in rows:
                 copy.write_row(row)
 
+    def _insert_stock_sqlite(self, rows: list[tuple]) -> int:
+        """Stock rows ``(part_id, location, quantity, unit_cost, updated_at)`` into SQLite with
+        ids from the import's own count (it holds the write lock); returns the first id."""
+        first_id = self.next_stock
+        self.next_stock += len(rows)
+        self.cur.executemany(self.sql_stock_ids,
+                             [(sid, *row) for sid, row in enumerate(rows, first_id)])
+        return first_id
+
     def _from_db(self, row: tuple) -> tuple:
         """A row read from the database in the parser's form (empty values as ``null``)."""
         null = self.null
@@ -478,13 +483,9 @@ class _Import:
         if not have:  # every (part, location) is new: the usual case, in bulk
             items = wanted.items()
             if self.sqlite:
-                # the stock rows get their ids here (the import holds the write lock), and
                 # their movement rows are copied from them by the database in one statement
-                first_id = self.next_stock
-                self.next_stock += len(wanted)
-                self.cur.executemany(self.sql_stock_ids, [
-                    (sid, pid, loc, q, c, now)
-                    for sid, ((pid, loc), (q, c, _)) in enumerate(items, first_id)])
+                first_id = self._insert_stock_sqlite([(pid, loc, q, c, now)
+                                                      for (pid, loc), (q, c, _) in items])
                 self.cur.execute(self.sql_move_of_stock, (note, first_id, self.next_stock))
             else:
                 self._insert(self.sql_stock, [(pid, loc, q, c, now)
@@ -511,11 +512,8 @@ class _Import:
             if new_qty != old_qty:
                 moves.append((pid, loc, new_qty - old_qty, new_qty, note, now))
         if inserts:
-            if self.sqlite:  # ids from the import's own count (see the bulk case above)
-                first_id = self.next_stock
-                self.next_stock += len(inserts)
-                self.cur.executemany(self.sql_stock_ids,
-                                     [(sid, *row) for sid, row in enumerate(inserts, first_id)])
+            if self.sqlite:
+                self._insert_stock_sqlite(inserts)
             else:
                 self._insert(self.sql_stock, inserts)
         if updates:
@@ -611,12 +609,17 @@ def export_csv(engine: Engine, out: TextIO, kind: str | None = None) -> int:
 
 def read_csv_values(path: str | Path) -> Iterable[tuple[dict, tuple | None]]:
     """Parsed rows of a catalog CSV (for comparisons in tests and tools)."""
+    name = str(path)
     with open(path, newline="", encoding="utf-8-sig") as fh:
-        for line, row in _read_rows(fh, str(path), ignore_extra=False):
+        reader = csv.reader(fh)
+        header = _read_header(reader, name, ignore_extra=False)
+        parse = compile_row_parser(header)
+        for line, cells in _data_rows(reader, name, len(header)):
             try:
-                yield parse_row(row)
+                values, stock = parse(cells)
             except InputError as exc:
-                raise exc.located(file=str(path), line=line) from None
+                raise exc.located(file=name, line=line) from None
+            yield dict(zip(PART_COLUMNS, values)), stock
 
 
 def export_text(engine: Engine, kind: str | None = None) -> str:

@@ -11,9 +11,8 @@ from __future__ import annotations
 from sqlalchemy.orm import DeclarativeBase, relationship
 
 from partsmatch.catalog import tables
-from partsmatch.catalog.tables import (  # noqa: F401  (re-exported)
-    CHARACTERISTICS, FUSE_STANDARDS, KINDS, NAMING, RATING_UNITS, TEXT_COLUMNS, utcnow,
-)
+from partsmatch.catalog.tables import utcnow  # noqa: F401  (re-exported for the writers)
+from partsmatch.catalog.vocab import KINDS, RATING_UNITS  # noqa: F401  (re-exported)
 
 
 class Base(DeclarativeBase):

@@ -100,8 +100,9 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from partsmatch.catalog.tables import KINDS, parts, stock
 from partsmatch.catalog.names import normalize_part_number
+from partsmatch.catalog.names import strip_separators as _key  # look-alikes kept as printed
 from partsmatch.catalog.records import PartRecord
-from partsmatch.errors import DatabaseError, InputError, PartsmatchError
+from partsmatch.errors import DatabaseError, InputError, PartsmatchError, short_message
 
 if TYPE_CHECKING:
     from sqlalchemy import Connection
@@ -560,13 +561,6 @@ def _pn_score(qn: str, q_key: str, pn_norm: str, part_number: str) -> tuple[floa
     return score, why
 
 
-def _key(s: str) -> str:
-    """Upper case without separators, look-alikes not folded."""
-    from partsmatch.catalog.names import strip_separators
-
-    return strip_separators(s)
-
-
 # --------------------------------------------------------------------------- find
 
 
@@ -601,8 +595,7 @@ def find(session: Reader, query: str, kind: str | None = None, in_stock: bool = 
     except PartsmatchError:
         raise
     except SQLAlchemyError as exc:
-        msg = " ".join(str(getattr(exc, "orig", exc)).split())[:200]
-        raise DatabaseError(f"find failed: {msg}") from None
+        raise DatabaseError(f"find failed: {short_message(exc)}") from None
 
 
 @dataclass

@@ -25,7 +25,7 @@ import numbers
 from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timezone
-from typing import Any, Iterator, Literal
+from typing import Any, Iterator
 
 from sqlalchemy import Engine, func, insert, or_, select, update
 from sqlalchemy.exc import DataError, IntegrityError, SQLAlchemyError
@@ -33,18 +33,17 @@ from sqlalchemy.orm import Session
 
 from partsmatch.catalog.models import KINDS, CrossRef, Part, Stock, StockMovement, utcnow
 from partsmatch.catalog.records import PartRecord
-from partsmatch.errors import DatabaseError, InputError, PartNotFound, StockError
+from partsmatch.catalog.vocab import MAX_QUANTITY
+from partsmatch.errors import (
+    DatabaseError, InputError, PartNotFound, StockError, short_message,
+)
 
-Relation = Literal["equivalent", "replaces"]
 #: ``equivalent``: either part may replace the other (the pair is recorded once, either way
 #: round); ``replaces``: part_b may replace part_a, not necessarily the other way.
 RELATIONS: tuple[str, ...] = ("equivalent", "replaces")
 
-#: Largest quantity a stock row holds: PostgreSQL's INTEGER column; SQLite is held to the same.
-MAX_QUANTITY = 2**31 - 1
 #: Column widths of the schema (PostgreSQL enforces them; SQLite is held to the same).
 LOCATION_MAX = 40
-RELATION_MAX = 20
 
 PartRef = str | PartRecord | int
 
@@ -144,10 +143,6 @@ class CrossRefRecord:
 
 
 # ------------------------------------------------------------------ helpers
-def _short(exc: BaseException) -> str:
-    return " ".join(str(getattr(exc, "orig", None) or exc).split())[:200]
-
-
 @contextmanager
 def _reading(bind: Engine | Session) -> Iterator[Session]:
     """A Session on ``bind`` (the caller's own Session is used as it is)."""
@@ -158,7 +153,7 @@ def _reading(bind: Engine | Session) -> Iterator[Session]:
             with Session(bind) as session:
                 yield session
     except SQLAlchemyError as exc:
-        raise DatabaseError(f"cannot read stock: {_short(exc)}") from None
+        raise DatabaseError(f"cannot read stock: {short_message(exc)}") from None
 
 
 @contextmanager
@@ -174,7 +169,7 @@ def _writing(engine: Engine, what: str) -> Iterator[Any]:
         with engine.begin() as conn:
             yield conn
     except SQLAlchemyError as exc:
-        raise DatabaseError(f"{what} failed, nothing changed: {_short(exc)}") from None
+        raise DatabaseError(f"{what} failed, nothing changed: {short_message(exc)}") from None
 
 
 def _resolve(bind: Engine | Session, part: PartRef) -> tuple[int, str, str]:

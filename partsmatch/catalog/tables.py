@@ -19,9 +19,7 @@ from sqlalchemy import (
     String, Table, Text, UniqueConstraint,
 )
 
-from partsmatch.catalog.vocab import (  # noqa: F401  (re-exported)
-    CHARACTERISTICS, FUSE_STANDARDS, KINDS, RATING_UNITS, TEXT_COLUMNS,
-)
+from partsmatch.catalog.vocab import KINDS  # noqa: F401  (re-exported for the lookups)
 
 NAMING = {
     "ix": "ix_%(column_0_label)s",

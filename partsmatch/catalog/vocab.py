@@ -17,5 +17,5 @@ RATING_UNITS: dict[str, str] = {
     "rated_current": "A", "voltage": "V", "voltage_dc_fuse": "V", "breaking_capacity": "A",
     "i2t": "A2s", "resistance": "ohm", "power": "W", "voltage_max": "V",
 }
-#: Free-text columns of a part.
-TEXT_COLUMNS = ("description", "dielectric", "characteristic", "fuse_standard", "size")
+#: Largest quantity a stock row holds: PostgreSQL's INTEGER column; SQLite is held to the same.
+MAX_QUANTITY = 2**31 - 1

@@ -75,8 +75,7 @@ def plot_waveforms(spec, waves: dict, path: str | Path, *,
 
     t = waves["t"]
     t_scale, t_unit = (1e3, "ms") if t[-1] >= 1e-3 else (1e6, "µs")
-    caps = [s for s, p in spec.parts.items() if p.role == "capacitor"]
-    diodes = [s for s, p in spec.parts.items() if p.role == "diode"]
+    caps, diodes = spec.slots("capacitor"), spec.slots("diode")
     shown_note = ""
     if len(caps) > 2 or len(diodes) > 2:  # a multiplier: the first and last of each column
         caps, diodes = [caps[0], caps[-1]], [diodes[0], diodes[-1]]

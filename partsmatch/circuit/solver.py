@@ -201,7 +201,6 @@ def quadrature_weights(segments: list["Segment"]) -> np.ndarray:
 class Run:
     segments: list[Segment]
     z_end: np.ndarray
-    mode_end: tuple[bool, ...]
     phi: np.ndarray | None
     events: int
 
@@ -421,8 +420,7 @@ class Netlist:
             j += 1
         return out
 
-    def _stepprop(self, md: _Mode, tau: float, j: int, k: int, rem: float,
-                  e_rem: np.ndarray | None) -> np.ndarray:
+    def _stepprop(self, md: _Mode, j: int, k: int, e_rem: np.ndarray | None) -> np.ndarray:
         """Propagator over the first j samples of a chunk of k full steps (+ rem)."""
         if j <= k:
             return self._pow(md, j)
@@ -543,18 +541,16 @@ class Netlist:
         tau = lo
         return tau, self._expm(md, tau)
 
-    def run(self, z0: np.ndarray, t0: float, duration: float, *, mode: tuple[bool, ...] | None
-            = None, jac: bool = False, max_events: int | None = None) -> Run:
+    def run(self, z0: np.ndarray, t0: float, duration: float, *, jac: bool = False) -> Run:
         """Simulate from augmented state z0 at time t0 for ``duration`` seconds."""
-        if mode is None:
-            mode = self.consistent_mode(z0)
+        mode = self.consistent_mode(z0)
         t_end = t0 + duration
         t, z = t0, z0.astype(float)
         segments: list[Segment] = []
         phi = np.eye(self.nz) if jac else None
         events = 0
         periods = max(1.0, duration / self.period)
-        limit = max_events or int(200 * (len(self.switches) + 1) * periods)
+        limit = int(200 * (len(self.switches) + 1) * periods)
         h = self.h
         chunk = CHUNK
         while t < t_end - 1e-12 * self.period:
@@ -597,8 +593,7 @@ class Netlist:
                 # go on from there
                 segments.append(Segment(t + taus[:i + 2], Z[:, :i + 2], mode))
                 if jac:
-                    phi = self._stepprop(md, taus[i + 1], i + 1, k, rem, e_rem if last and rem
-                                         else None) @ phi
+                    phi = self._stepprop(md, i + 1, k, e_rem if last and rem else None) @ phi
                 z = Z[:, i + 1]
                 t = t + taus[i + 1]
                 if t >= t_end - 1e-12 * self.period:
@@ -627,7 +622,7 @@ class Netlist:
             if events > limit:
                 raise SimulationError("the switching does not settle (more than "
                                       f"{limit} switching events); check the load and parts")
-        return Run(segments, z, mode, phi, events)
+        return Run(segments, z, phi, events)
 
     def _saltation(self, md: _Mode, md2: _Mode, z: np.ndarray) -> np.ndarray:
         """Jacobian jump at a switching event: I + (f+ - f-) dg / (dg . f-), with dg the

@@ -42,11 +42,12 @@ from typing import Any
 
 import numpy as np
 
+from partsmatch.circuit.formulas import discharge_time, stored_energy
 from partsmatch.circuit.solver import Netlist, SteadyState
-from partsmatch.errors import SimulationError
 from partsmatch.circuit.spec import CircuitSpec
 from partsmatch.circuit.topologies import Wiring, build_netlist, ideal_dc
 from partsmatch.circuit.worst import worse as _worse
+from partsmatch.errors import SimulationError
 
 #: The steady-state search starts with the capacitors at this fraction of their ideal no-load
 #: voltage: just below the orbit, where the diodes conduct and the Newton step is well informed.
@@ -134,11 +135,10 @@ def _empty(spec: CircuitSpec) -> dict[str, Any]:
 def _cap_energy(spec: CircuitSpec, slot: str, v_peak: float, safe: float
                 ) -> tuple[float, float | None]:
     p = spec.parts[slot]
-    energy = 0.5 * p.capacitance * v_peak ** 2
+    energy = stored_energy(p.capacitance, v_peak)
     if not p.bleeder:
         return energy, None
-    v0 = abs(v_peak)
-    return energy, (p.bleeder * p.capacitance * math.log(v0 / safe) if v0 > safe else 0.0)
+    return energy, discharge_time(p.bleeder, p.capacitance, abs(v_peak), safe)
 
 
 def _steady_measures(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: SteadyState,
@@ -195,9 +195,10 @@ def _fuse_open(spec: CircuitSpec, net: Netlist, wiring: Wiring, ss: SteadyState,
     return float(np.abs(v).max()), _rms(out["w"], v)
 
 
-def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str, Any]]:
-    net, wiring = build_netlist(spec, load=spec.load.type != "threshold")
-    diodes = [wiring.slots[s] for s, p in spec.parts.items() if p.role == "diode"]
+def _worst_phase(spec: CircuitSpec, net: Netlist, wiring: Wiring) -> float:
+    """The source phase (rad) at which switching on from discharged capacitors gives the
+    largest first diode current: a coarse search over PHASES phases, refined three times."""
+    diodes = [wiring.slots[s] for s in spec.slots("diode")]
     rows = [len(net.nodes) + 2 * net.elem_index[d] + 1 for d in diodes]
 
     def first_peak(phase: float) -> float:
@@ -220,6 +221,12 @@ def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str
             pk = first_peak(cand)
             if pk > best_peak:
                 best_phase, best_peak = cand, pk
+    return best_phase
+
+
+def _switch_on(spec: CircuitSpec, safe: float) -> tuple[dict[str, Any], dict[str, Any]]:
+    net, wiring = build_netlist(spec, load=spec.load.type != "threshold")
+    best_phase = _worst_phase(spec, net, wiring)
     t0 = best_phase / net.omega
     z0 = np.concatenate([np.zeros(net.nx), net.u_at(t0)])
     run = net.run(z0, t0, SWITCH_ON_PERIODS * net.period)
@@ -433,8 +440,7 @@ def simulate_waveforms(spec: CircuitSpec, state: str = "loaded", periods: int = 
         raise ValueError(f"state must be one of {STATES}")
     if state == "switch_on":
         net, wiring = build_netlist(spec, load=spec.load.type != "threshold")
-        _, info = _switch_on(spec, 50.0)
-        t0 = math.radians(info["phase_deg"]) / net.omega
+        t0 = _worst_phase(spec, net, wiring) / net.omega
         z0 = np.concatenate([np.zeros(net.nx), net.u_at(t0)])
     else:
         vf = 1.0

@@ -46,6 +46,7 @@ continuous, which a switch-on at exactly 0 V would not be);
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from partsmatch.circuit.solver import R_FUSE_OPEN, Element, Netlist
@@ -81,11 +82,10 @@ class Wiring:
     load_element: str | None  # element name of the load, None when absent
     load_nodes: tuple[str, str]  # (out+, out-)
     source: str  # element name of the sine source
-    feed: str  # node feeding the rectifier
 
 
 def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = False,
-                  voltage_factor: float = 1.0, steps: int | None = None) -> tuple[Netlist, Wiring]:
+                  voltage_factor: float = 1.0) -> tuple[Netlist, Wiring]:
     """The netlist of ``spec`` in one operating condition.
 
     Args:
@@ -181,7 +181,6 @@ def build_netlist(spec: CircuitSpec, *, load: bool = True, fuse_open: bool = Fal
             vc = COMPLIANCE * vpk
             els.append(Element("S", "LOAD", out[0], out[1], von=vc, ion=ld.current,
                                roff=vc / ld.current))
-    omega = 2 * 3.141592653589793 * src.frequency
-    kwargs = {} if steps is None else {"steps": steps}
-    net = Netlist(els, omega, vscale=vpk, **kwargs)
-    return net, Wiring(slots=slots, load_element=load_el, load_nodes=out, source="VS", feed=x)
+    omega = 2 * math.pi * src.frequency
+    net = Netlist(els, omega, vscale=vpk)
+    return net, Wiring(slots=slots, load_element=load_el, load_nodes=out, source="VS")

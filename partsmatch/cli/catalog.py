@@ -108,16 +108,14 @@ def parts_list(
     json_out: bool = typer.Option(False, "--json", help="Print as JSON."),
 ) -> None:
     """List the catalog's parts with their main ratings and stock."""
-    from sqlalchemy.orm import Session
-
-    from partsmatch.catalog.models import KINDS
     from partsmatch.catalog.queries import list_parts
+    from partsmatch.catalog.vocab import KINDS
     from partsmatch.errors import InputError
 
     if kind and kind not in KINDS:
         raise InputError(f"--kind must be one of {', '.join(KINDS)}", value=kind)
-    with Session(globals_of(ctx).engine()) as session:
-        parts = list_parts(session, kind, limit)
+    with globals_of(ctx).engine().connect() as conn:  # reading needs no ORM
+        parts = list_parts(conn, kind, limit)
     if json_out:
         emit_json([p.to_dict() for p in parts])
         return
@@ -132,14 +130,12 @@ def parts_show(
     json_out: bool = typer.Option(False, "--json", help="Print as JSON."),
 ) -> None:
     """Show one part's ratings (in engineering units) and its stock by location."""
-    from sqlalchemy.orm import Session
-
-    from partsmatch.catalog.models import RATING_UNITS
     from partsmatch.catalog.queries import find_part
+    from partsmatch.catalog.vocab import RATING_UNITS
     from partsmatch.units import format_quantity
 
-    with Session(globals_of(ctx).engine()) as session:
-        p = find_part(session, part)
+    with globals_of(ctx).engine().connect() as conn:  # reading needs no ORM
+        p = find_part(conn, part)
     if json_out:
         emit_json(p.to_dict())
         return

@@ -196,10 +196,7 @@ def polarity(orig: PartRecord, cand: PartRecord, st: SlotStress, policy: Policy)
     highs = [v for v in (st.continuous.get("v_max"), st.transient.get("v_max"))
              if v is not None]
     v_min = min(lows, default=0.0)
-    v_max = max(highs, default=0.0 if lows else 0.0)
-    if not highs:  # an older stress report without v_max: take the signed peak as the top
-        v_max = max([v for v in (st.continuous.get("v_peak"), st.transient.get("v_peak"))
-                     if v is not None] + [0.0])
+    v_max = max(highs, default=0.0)
     reverse = min(-v_min, v_max)  # how far the voltage goes against its main sign
     if reverse <= limit:
         sign = "+" if abs(v_max) >= abs(v_min) else "-"
